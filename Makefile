@@ -1,0 +1,20 @@
+# plumbline build, test and benchmark targets. `make test` is the README's
+# test command and what CI runs: it starts the real servers the tests need.
+GO ?= go
+
+.PHONY: build test test-unit bench bench-detect fuzz vet
+
+build:
+	$(GO) build -o bin/plumbline ./daemon
+
+# The whole suite against real Mosquitto and InfluxDB servers, installed
+# and started by scripts/testenv.sh.
+test:
+	$(GO) vet ./...
+	$(GO) test -count=1 -timeout 20m ./...
+
+bench:
+	$(GO) test -run '^$$' -bench . -benchmem -timeout 30m ./...
+
+vet:
+	$(GO) vet ./...
