@@ -1,7 +1,9 @@
 package network
 
 import (
+	"encoding/json"
 	"fmt"
+	"maps"
 	"time"
 )
 
@@ -179,8 +181,15 @@ type Node struct {
 	// q = LeakCoeff · p^LeakExponent (q in L/s, p in m), FAVAD (May 1994).
 	LeakCoeff, LeakExponent float64
 	// Level is a tank's initial water level above its bottom, m; MinLevel
-	// and MaxLevel bound it; TankDiameter gives its plan area (m).
+	// and MaxLevel bound it; TankDiameter gives its plan area (m). The
+	// reader sets MaxLevel to +Inf when the file gives no max_level_m
+	// (no upper bound) and TankDiameter to 0 when it gives no diameter_m
+	// (plan area unknown).
 	Level, MinLevel, MaxLevel, TankDiameter float64
+	// Extra keeps the feature's properties this package does not know
+	// (names, labels, asset numbers), compact JSON by key, so that a file
+	// read and written again keeps them. Nil when there are none.
+	Extra map[string]json.RawMessage
 }
 
 // IsFixedHead reports whether the node's head is given, not solved for.
@@ -226,6 +235,8 @@ type Link struct {
 	HasSetting bool
 	// Geometry is the link's polyline; empty for a null geometry.
 	Geometry []Point
+	// Extra keeps unknown feature properties, as Node.Extra does.
+	Extra map[string]json.RawMessage
 }
 
 // Network is a water distribution network: nodes, links and the file-wide
@@ -239,6 +250,9 @@ type Network struct {
 	Viscosity   float64 // m²/s
 	Patterns    map[string][]float64
 	PatternStep time.Duration
+	// Extra keeps the file's unknown top-level members (compact JSON by
+	// key) so that a rewrite keeps them. Nil when there are none.
+	Extra map[string]json.RawMessage
 
 	nodeIndex map[string]int
 	linkIndex map[string]int
@@ -310,12 +324,17 @@ func (n *Network) PatternValue(name string, t time.Duration) float64 {
 func (n *Network) Clone() *Network {
 	c := *n
 	c.Nodes = append([]Node(nil), n.Nodes...)
+	for i := range c.Nodes {
+		c.Nodes[i].Extra = maps.Clone(c.Nodes[i].Extra)
+	}
 	c.Links = make([]Link, len(n.Links))
 	for i, l := range n.Links {
 		l.Curve = append([][2]float64(nil), l.Curve...)
 		l.Geometry = append([]Point(nil), l.Geometry...)
+		l.Extra = maps.Clone(l.Extra)
 		c.Links[i] = l
 	}
+	c.Extra = maps.Clone(n.Extra)
 	c.Patterns = make(map[string][]float64, len(n.Patterns))
 	for k, v := range n.Patterns {
 		c.Patterns[k] = append([]float64(nil), v...)
