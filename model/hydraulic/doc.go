@@ -1,0 +1,83 @@
+// Package hydraulic computes the steady state of a water network: the
+// head at every junction and the flow in every link, for given demands,
+// source heads, leaks, link statuses, pump speeds and valve settings.
+//
+// # Method
+//
+// The unknowns are the junction heads H and the link flows Q. Continuity
+// holds at every junction (inflow = outflow + demand + leak) and energy
+// along every link (head difference = head loss of the link's law). The
+// Solver applies Newton's method to the joint system in the form of the
+// global gradient method of Todini & Pilati (1988): with
+// p_k = 1/(dh_k/dQ_k) each step solves the Schur complement
+//
+//	(A P Aᵀ + diag(dleak/dH)) ΔH = continuity residual − A·y
+//
+// a sparse symmetric positive definite system in the junction heads alone,
+// then updates each flow by ΔQ_k = p_k (ΔH_from − ΔH_to) − y_k. The matrix
+// pattern (junction-junction adjacency through links) is fixed by the
+// topology, so NewSolver orders it and factors it symbolically once; each
+// iteration only refactors numerically. Closed and shut links stay in the
+// pattern with a conductance of 1e-9 L/s per m of head, so the pattern
+// never changes with status.
+//
+// # Laws
+//
+//   - Hazen-Williams, SI form h = 10.67 L Q^1.852 / (C^1.852 D^4.8704).
+//   - Darcy-Weisbach h = f (L/D) v²/2g, f by Colebrook-White (1939)
+//     solved to machine precision for Re ≥ 4000, 64/Re for Re ≤ 2000 and a
+//     cubic Hermite blend in Re between (see FrictionFactor).
+//   - Minor losses K v²/2g on pipes and valves.
+//   - Every open link carries in addition a linear resistance of 1e-6 m
+//     per L/s, so that dh/dQ never vanishes at zero flow (the low-flow
+//     linearisation); it changes heads by 1e-4 m per 100 L/s.
+//   - Pumps: H = A − B Q^C fitted to the curve (see FitPumpCurve), at
+//     relative speed s by the affinity laws H = s²A − B s^(2−C) Q^C; below
+//     1% of the zero-head flow the curve is continued by its tangent.
+//     A pump whose flow would reverse is shut (CheckShut) and reopens when
+//     the head across it falls below its shutoff head.
+//   - Leaks: FAVAD (May 1994) q = C p^N for p > 0, smoothed below 0.01 m
+//     for N < 1 (see LeakFlow); the network's and the Conditions' leaks add.
+//   - Valves: isolating (open or closed, minor loss when open), throttle
+//     (loss coefficient = setting), flow-control (Active holds the flow at
+//     the setting; Open when the head across it reverses),
+//     pressure-reducing (Active holds the outlet head at outlet elevation
+//     + setting; Open when the inlet head is below that; CheckShut against
+//     reverse flow) and pressure-sustaining (the same for the inlet). An
+//     active pressure valve pins the controlled node's head with a penalty
+//     of 1e12 on the diagonal; its flow comes from continuity at that node.
+//
+// # Status logic
+//
+// Statuses are re-examined only after an iteration whose largest flow
+// change is below Options.StatusFlowChange, each test with a margin (the
+// flow tolerance or Options.HeadHysteresis). A link that changes status
+// more than Options.MaxStatusChanges times in one Solve is frozen; if its
+// test still disagrees with its state at the end, Solve returns a
+// *NotConvergedError naming it. A Solve converges when the largest flow
+// change of the last iteration is at most Options.FlowTolerance, the
+// largest junction continuity residual at most Options.ImbalanceTolerance,
+// and no status changed.
+//
+// # Sensitivities
+//
+// At a converged solution Sensitivities returns, for each observation (a
+// node head or a link flow), its derivative with respect to extra
+// outflow at every junction and to the logarithm of every link's
+// resistance factor, by the adjoint method: the Jacobian is factored once,
+// then one solve per observation. Active pressure valves, whose flow is
+// set by continuity at their controlled node, enter as a low-rank
+// (Woodbury) correction so that the derivatives are exact for them too.
+//
+// # Units and ownership
+//
+// Flows in L/s, heads and pressures in m, lengths in m, diameters in mm in
+// the network (m in the exported SI head-loss functions, whose flows are
+// m³/s). A Solver owns its workspace and reuses it (no allocation inside
+// the iteration loop); it is not safe for concurrent use. Every Solution
+// is freshly allocated and belongs to the caller. Bad input (a link
+// without diameter, a pump curve that does not fall, a conditions slice of
+// the wrong length) is an error naming the link, node or field; a
+// junction cut off from every source is a *DisconnectedError naming it;
+// the solver never returns NaN heads without an error.
+package hydraulic

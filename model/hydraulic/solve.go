@@ -1,0 +1,533 @@
+package hydraulic
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"plumbline/model/network"
+)
+
+// Solve computes the steady state under the conditions c (nil: as in the
+// network), starting from warm if it is a solution of this Solver's
+// network (nil: a cold start). It returns the solution, or an error:
+// a *NotConvergedError (with the last iterate as the Solution), a
+// *DisconnectedError naming junctions cut off from every source, or an
+// error naming the bad entry of c.
+func (s *Solver) Solve(c *Conditions, warm *Solution) (*Solution, error) {
+	if c == nil {
+		c = &Conditions{}
+	}
+	sol, err := s.newSolution(c)
+	if err != nil {
+		return nil, err
+	}
+	if err := s.checkConnected(sol); err != nil {
+		return nil, err
+	}
+	s.initialise(sol, warm)
+	return s.iterate(sol)
+}
+
+func (s *Solver) newSolution(c *Conditions) (*Solution, error) {
+	net := s.net
+	nn, nl := len(net.Nodes), len(net.Links)
+	check := func(name string, got, want int) error {
+		if got != 0 && got != want {
+			return fmt.Errorf("hydraulic: conditions: %s has %d entries, want %d", name, got, want)
+		}
+		return nil
+	}
+	for _, e := range []error{
+		check("Demand", len(c.Demand), nn),
+		check("FixedHead", len(c.FixedHead), nn),
+		check("LeakCoeff", len(c.LeakCoeff), nn),
+		check("LeakExponent", len(c.LeakExponent), nn),
+		check("Status", len(c.Status), nl),
+		check("PumpSpeed", len(c.PumpSpeed), nl),
+		check("ValveSetting", len(c.ValveSetting), nl),
+		check("ResistanceFactor", len(c.ResistanceFactor), nl),
+	} {
+		if e != nil {
+			return nil, e
+		}
+	}
+	if (c.LeakCoeff == nil) != (c.LeakExponent == nil) {
+		return nil, errors.New("hydraulic: conditions: LeakCoeff and LeakExponent must be given together")
+	}
+	sol := &Solution{
+		Head: make([]float64, nn), Pressure: make([]float64, nn),
+		Demand: make([]float64, nn), Leak: make([]float64, nn),
+		Flow: make([]float64, nl), Velocity: make([]float64, nl), Headloss: make([]float64, nl),
+		State: make([]LinkState, nl),
+		leakC: make([]float64, nn), leakN: make([]float64, nn),
+		speed: make([]float64, nl), setting: make([]float64, nl), factor: make([]float64, nl),
+		solver: s,
+	}
+	bad := func(v float64) bool { return math.IsNaN(v) || math.IsInf(v, 0) }
+	for i := range net.Nodes {
+		n := &net.Nodes[i]
+		if n.IsFixedHead() {
+			h := n.FixedHead()
+			if c.FixedHead != nil && !math.IsNaN(c.FixedHead[i]) {
+				h = c.FixedHead[i]
+			}
+			if bad(h) {
+				return nil, fmt.Errorf("hydraulic: conditions: node %s: fixed head is not a number", n.ID)
+			}
+			sol.Head[i] = h
+			continue
+		}
+		d := n.Demand
+		if c.Demand != nil {
+			d = c.Demand[i]
+		}
+		if bad(d) {
+			return nil, fmt.Errorf("hydraulic: conditions: junction %s: demand is not a number", n.ID)
+		}
+		sol.Demand[i] = d
+		if n.LeakCoeff < 0 || n.LeakExponent < 0 || bad(n.LeakCoeff) || bad(n.LeakExponent) {
+			return nil, fmt.Errorf("hydraulic: junction %s: leak coefficient and exponent must be ≥ 0", n.ID)
+		}
+		if c.LeakCoeff != nil {
+			lc, le := c.LeakCoeff[i], c.LeakExponent[i]
+			if lc < 0 || le < 0 || bad(lc) || bad(le) {
+				return nil, fmt.Errorf("hydraulic: conditions: junction %s: leak coefficient and exponent must be ≥ 0", n.ID)
+			}
+			sol.leakC[i], sol.leakN[i] = lc, le
+		}
+	}
+	for k := range net.Links {
+		l := &net.Links[k]
+		m := &s.lm[k]
+		st := l.Status
+		if c.Status != nil {
+			st = c.Status[k]
+		}
+		sol.factor[k] = 1
+		if c.ResistanceFactor != nil {
+			f := c.ResistanceFactor[k]
+			if !(f > 0) || bad(f) {
+				return nil, fmt.Errorf("hydraulic: conditions: link %s: resistance factor must be positive, got %g", l.ID, f)
+			}
+			sol.factor[k] = f
+		}
+		switch m.kind {
+		case lkPump:
+			sp := l.Speed
+			if sp == 0 {
+				sp = 1 // zero value of Link.Speed means nominal
+			}
+			if c.PumpSpeed != nil && !math.IsNaN(c.PumpSpeed[k]) {
+				sp = c.PumpSpeed[k]
+			}
+			if sp < 0 || bad(sp) {
+				return nil, fmt.Errorf("hydraulic: conditions: pump %s: speed must be ≥ 0, got %g", l.ID, sp)
+			}
+			sol.speed[k] = sp
+			if sp == 0 {
+				st = network.Closed
+			}
+		case lkValve:
+			set := l.Setting
+			if c.ValveSetting != nil && !math.IsNaN(c.ValveSetting[k]) {
+				set = c.ValveSetting[k]
+			}
+			if bad(set) {
+				return nil, fmt.Errorf("hydraulic: conditions: valve %s: setting is not a number", l.ID)
+			}
+			if (m.valve == network.FlowControl || m.valve == network.Throttle) && set < 0 {
+				return nil, fmt.Errorf("hydraulic: valve %s: %s setting must be ≥ 0, got %g", l.ID, m.valve, set)
+			}
+			sol.setting[k] = set
+		}
+		if st == network.Closed {
+			sol.State[k] = Closed
+		} else {
+			sol.State[k] = s.defaultState(k)
+		}
+	}
+	return sol, nil
+}
+
+// defaultState is the state a link not closed starts in.
+func (s *Solver) defaultState(k int) LinkState {
+	m := &s.lm[k]
+	if m.kind == lkValve {
+		switch m.valve {
+		case network.PressureReducing, network.PressureSustaining, network.FlowControl:
+			return Active
+		}
+	}
+	return Open
+}
+
+// checkConnected finds junctions with no path of non-closed links to a
+// fixed-head node.
+func (s *Solver) checkConnected(sol *Solution) error {
+	q := s.queue[:0]
+	for i := range s.seen {
+		s.seen[i] = s.jx[i] < 0
+		if s.seen[i] {
+			q = append(q, i)
+		}
+	}
+	for h := 0; h < len(q); h++ {
+		n := q[h]
+		for _, k := range s.incLink[s.incPtr[n]:s.incPtr[n+1]] {
+			if sol.State[k] == Closed {
+				continue
+			}
+			o := s.lm[k].to
+			if o == n {
+				o = s.lm[k].from
+			}
+			if !s.seen[o] {
+				s.seen[o] = true
+				q = append(q, o)
+			}
+		}
+	}
+	s.queue = q[:0]
+	if len(q) == len(s.seen) {
+		return nil
+	}
+	e := &DisconnectedError{}
+	for i, ok := range s.seen {
+		if !ok {
+			e.Count++
+			if len(e.Junctions) < 50 {
+				e.Junctions = append(e.Junctions, s.net.Nodes[i].ID)
+			}
+		}
+	}
+	return fmt.Errorf("hydraulic: %w", e)
+}
+
+// initialise sets the first iterate: warm flows, heads and states if
+// given, otherwise 0.3 m/s in every pipe and valve, pumps at the middle of
+// their curves, junction heads at the highest source head.
+func (s *Solver) initialise(sol *Solution, warm *Solution) {
+	nn, nl := len(s.net.Nodes), len(s.net.Links)
+	if warm != nil && (len(warm.Head) != nn || len(warm.Flow) != nl || len(warm.State) != nl) {
+		warm = nil
+	}
+	hmax := math.Inf(-1)
+	for i := range s.net.Nodes {
+		if s.jx[i] < 0 {
+			hmax = max(hmax, sol.Head[i])
+		}
+	}
+	for i := range s.net.Nodes {
+		if s.jx[i] < 0 {
+			continue
+		}
+		if warm != nil && !math.IsNaN(warm.Head[i]) && !math.IsInf(warm.Head[i], 0) {
+			sol.Head[i] = warm.Head[i]
+		} else {
+			sol.Head[i] = hmax
+		}
+	}
+	for k := range s.lm {
+		m := &s.lm[k]
+		s.changes[k], s.flips[k], s.frozen[k] = 0, 0, false
+		if warm != nil && sol.State[k] != Closed && warm.State[k] != Closed {
+			sol.State[k] = warm.State[k]
+		}
+		if warm != nil && !math.IsNaN(warm.Flow[k]) && !math.IsInf(warm.Flow[k], 0) {
+			sol.Flow[k] = warm.Flow[k]
+			continue
+		}
+		switch {
+		case sol.State[k] == Closed:
+			sol.Flow[k] = 0
+		case m.kind == lkPump:
+			sol.Flow[k] = 0.5 * m.curve.MaxFlow(sol.speed[k])
+		case m.kind == lkValve && m.valve == network.FlowControl:
+			sol.Flow[k] = sol.setting[k]
+		default:
+			sol.Flow[k] = 0.3 * m.area * 1000
+		}
+	}
+}
+
+// leakAt returns a node's total leak outflow and its derivative at head h.
+func (s *Solver) leakAt(i int, h float64, sol *Solution) (q, dq float64) {
+	n := &s.net.Nodes[i]
+	p := h - n.Elevation
+	q1, d1 := LeakFlow(n.LeakCoeff, n.LeakExponent, p)
+	q2, d2 := LeakFlow(sol.leakC[i], sol.leakN[i], p)
+	return q1 + q2, d1 + d2
+}
+
+// residuals fills s.F with the continuity residual of every node
+// (inflow − outflow − demand − leak; zero for fixed-head nodes) and
+// s.leakD with dleak/dH, and returns the largest |F| over junctions.
+func (s *Solver) residuals(sol *Solution) float64 {
+	for i := range s.F {
+		if s.jx[i] < 0 {
+			s.F[i], s.leakD[i] = 0, 0
+			continue
+		}
+		q, dq := s.leakAt(i, sol.Head[i], sol)
+		s.F[i] = -sol.Demand[i] - q
+		s.leakD[i] = dq
+	}
+	for k := range s.lm {
+		m := &s.lm[k]
+		q := sol.Flow[k]
+		if m.jf >= 0 {
+			s.F[m.from] -= q
+		}
+		if m.jt >= 0 {
+			s.F[m.to] += q
+		}
+	}
+	worst := 0.0
+	for i, f := range s.F {
+		if s.jx[i] >= 0 {
+			worst = max(worst, math.Abs(f))
+		}
+	}
+	return worst
+}
+
+// coefficients fills p (conductance) and y (flow correction) of every
+// link for its state: ΔQ = p·(ΔH_from − ΔH_to) − y. Active pressure
+// valves get p = y = 0 and ctrl = controlled node.
+func (s *Solver) coefficients(sol *Solution) {
+	for k := range s.lm {
+		m := &s.lm[k]
+		q := sol.Flow[k]
+		dh := sol.Head[m.from] - sol.Head[m.to]
+		s.ctrl[k] = -1
+		s.s[k] = 0
+		switch sol.State[k] {
+		case Closed, CheckShut:
+			s.p[k] = 1 / gClosed
+			s.y[k] = q - s.p[k]*dh
+		case Active:
+			if m.valve == network.FlowControl {
+				s.p[k] = 1 / gClosed
+				s.y[k] = q - sol.setting[k]
+				break
+			}
+			s.p[k], s.y[k] = 0, 0
+			s.ctrl[k], _ = s.controlled(k, sol)
+		default:
+			h, g, sc := s.lawOpen(k, q, sol)
+			s.p[k] = 1 / g
+			s.y[k] = (h - dh) / g
+			s.s[k] = sc
+		}
+	}
+}
+
+// sign of link k at node n in the incidence matrix: +1 if k flows into n.
+func (s *Solver) incidence(k, n int) float64 {
+	if s.lm[k].to == n {
+		return 1
+	}
+	return -1
+}
+
+// assemble builds the Schur complement matrix and right-hand side.
+func (s *Solver) assemble(sol *Solution) {
+	for j, n := range s.node {
+		s.diag[j] = s.leakD[n]
+		s.rhs[j] = s.F[n]
+	}
+	for k := range s.lm {
+		m := &s.lm[k]
+		p, y := s.p[k], s.y[k]
+		if m.jf >= 0 {
+			s.diag[m.jf] += p
+			s.rhs[m.jf] += y
+		}
+		if m.jt >= 0 {
+			s.diag[m.jt] += p
+			s.rhs[m.jt] -= y
+		}
+		if m.entry >= 0 {
+			s.off[m.entry] = -p
+		}
+	}
+	// Active pressure valves: pin the controlled node, predict the
+	// valve's flow change and pass it to the other end.
+	for k := range s.lm {
+		c := s.ctrl[k]
+		if c < 0 {
+			continue
+		}
+		m := &s.lm[k]
+		_, hset := s.controlled(k, sol)
+		jc := s.jx[c]
+		delta := hset - sol.Head[c]
+		s.diag[jc] += cBig
+		s.rhs[jc] += cBig * delta
+		o := m.from
+		if c == m.from {
+			o = m.to
+		}
+		jo := s.jx[o]
+		if jo < 0 {
+			continue
+		}
+		acK := s.incidence(k, c)
+		sum := s.F[c] - s.leakD[c]*delta
+		for _, l := range s.incLink[s.incPtr[c]:s.incPtr[c+1]] {
+			if l == k {
+				continue
+			}
+			a := s.incidence(l, c)
+			sum += -s.p[l]*delta - a*s.y[l]
+		}
+		pred := -sum / acK
+		s.rhs[jo] += s.incidence(k, o) * pred
+	}
+}
+
+// updateFlows applies ΔH to heads and ΔQ to flows and returns max |ΔQ|.
+func (s *Solver) updateFlows(sol *Solution) float64 {
+	for j, n := range s.node {
+		sol.Head[n] += s.dH[j]
+	}
+	dh := func(j int) float64 {
+		if j < 0 {
+			return 0
+		}
+		return s.dH[j]
+	}
+	for k := range s.lm {
+		m := &s.lm[k]
+		if s.ctrl[k] >= 0 {
+			s.dQ[k] = 0
+			continue
+		}
+		s.dQ[k] = s.p[k]*(dh(m.jf)-dh(m.jt)) - s.y[k]
+	}
+	for k := range s.lm {
+		c := s.ctrl[k]
+		if c < 0 {
+			continue
+		}
+		// continuity at c, linearised: F + Σ A ΔQ − L' ΔH = 0
+		sum := s.F[c] - s.leakD[c]*s.dH[s.jx[c]]
+		for _, l := range s.incLink[s.incPtr[c]:s.incPtr[c+1]] {
+			if l != k {
+				sum += s.incidence(l, c) * s.dQ[l]
+			}
+		}
+		s.dQ[k] = -sum / s.incidence(k, c)
+	}
+	worst := 0.0
+	for k := range s.lm {
+		sol.Flow[k] += s.dQ[k]
+		worst = max(worst, math.Abs(s.dQ[k]))
+	}
+	return worst
+}
+
+func (s *Solver) iterate(sol *Solution) (*Solution, error) {
+	opt := &s.opt
+	imb := s.residuals(sol)
+	dqMax := math.Inf(1)
+	it := 0
+	converged := false
+	for it < opt.MaxIterations {
+		it++
+		s.coefficients(sol)
+		s.assemble(sol)
+		if err := s.fac.Factorize(s.diag, s.off); err != nil {
+			return nil, s.factorError(err)
+		}
+		s.fac.Solve(s.dH, s.rhs)
+		for _, v := range s.dH {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return nil, errors.New("hydraulic: head correction is not finite (ill-conditioned network)")
+			}
+		}
+		prev := dqMax
+		dqMax = s.updateFlows(sol)
+		imb = s.residuals(sol)
+		_ = prev
+		changed := false
+		if dqMax <= opt.StatusFlowChange {
+			changed = s.updateStatus(sol, true)
+		}
+		if dqMax <= opt.FlowTolerance && imb <= opt.ImbalanceTolerance && !changed {
+			converged = true
+			break
+		}
+	}
+	sol.Iterations = it
+	sol.MaxFlowChange = dqMax
+	sol.MaxImbalance = imb
+	s.finish(sol)
+	if converged {
+		// Links frozen for oscillating must agree with their final state.
+		var osc []string
+		for k := range s.lm {
+			if s.frozen[k] && s.wouldChange(k, sol) {
+				osc = append(osc, s.net.Links[k].ID)
+			}
+		}
+		if len(osc) == 0 {
+			sol.Converged = true
+			return sol, nil
+		}
+		return sol, &NotConvergedError{Iterations: it, MaxFlowChange: dqMax, MaxImbalance: imb, Oscillating: osc}
+	}
+	e := &NotConvergedError{Iterations: it, MaxFlowChange: dqMax, MaxImbalance: imb}
+	for k := range s.lm {
+		if s.changes[k] >= 3 {
+			e.Oscillating = append(e.Oscillating, s.net.Links[k].ID)
+		}
+	}
+	if len(e.Oscillating) == 0 {
+		e.Oscillating = s.sortedByFlowChange(10)
+	}
+	return sol, e
+}
+
+func (s *Solver) factorError(err error) error {
+	var pe *pivotError
+	if errors.As(err, &pe) && pe.row >= 0 && pe.row < s.nj {
+		return fmt.Errorf("hydraulic: junction %s: head equation singular (pivot %g): is it cut off, or joined only by links of zero resistance?", s.net.Nodes[s.node[pe.row]].ID, pe.pivot)
+	}
+	return fmt.Errorf("hydraulic: factorisation: %w", err)
+}
+
+// finish fills the derived per-node and per-link fields.
+func (s *Solver) finish(sol *Solution) {
+	net := s.net
+	for i := range net.Nodes {
+		n := &net.Nodes[i]
+		switch {
+		case s.jx[i] >= 0:
+			sol.Pressure[i] = sol.Head[i] - n.Elevation
+			q, _ := s.leakAt(i, sol.Head[i], sol)
+			sol.Leak[i] = q
+		case n.Kind == network.Tank:
+			sol.Pressure[i] = sol.Head[i] - n.Elevation
+			sol.Demand[i] = 0
+		default:
+			sol.Pressure[i] = 0
+			sol.Demand[i] = 0
+		}
+	}
+	for k := range s.lm {
+		m := &s.lm[k]
+		q := sol.Flow[k]
+		if m.jf < 0 {
+			sol.Demand[m.from] -= q
+		}
+		if m.jt < 0 {
+			sol.Demand[m.to] += q
+		}
+		sol.Headloss[k] = sol.Head[m.from] - sol.Head[m.to]
+		if m.area > 0 {
+			sol.Velocity[k] = q / 1000 / m.area
+		}
+	}
+}
