@@ -41,8 +41,8 @@
 //   - Valves: isolating (open or closed, minor loss when open), throttle
 //     (loss coefficient = setting), flow-control (Active holds the flow at
 //     the setting; Open when the head across it reverses),
-//     pressure-reducing (Active holds the outlet head at outlet elevation
-//     + setting; Open when the inlet head is below that; CheckShut against
+//     pressure-reducing (Active holds the outlet head at the outlet
+//     elevation plus the setting; Open when the inlet head is below that; CheckShut against
 //     reverse flow) and pressure-sustaining (the same for the inlet). An
 //     active pressure valve pins the controlled node's head with a penalty
 //     of 1e12 on the diagonal; its flow comes from continuity at that node.
