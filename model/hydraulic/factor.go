@@ -1,9 +1,10 @@
 package hydraulic
 
 import (
+	"errors"
 	"fmt"
 
-	"gonum.org/v1/gonum/mat"
+	"plumbline/model/sparse"
 )
 
 // factorizer is the numeric half of a symmetric positive definite solver
@@ -25,60 +26,30 @@ func (e *pivotError) Error() string {
 	return fmt.Sprintf("matrix not positive definite at row %d (pivot %g)", e.row, e.pivot)
 }
 
-// denseFactor is a dense Cholesky (gonum mat) behind the factorizer
-// interface, for small networks and as an independent check of the sparse
-// path in tests.
-type denseFactor struct {
-	n          int
-	rows, cols []int
-	a          *mat.SymDense
-	chol       mat.Cholesky
-	bv, xv     *mat.VecDense
+// sparseFactor adapts model/sparse to the factorizer interface.
+type sparseFactor struct{ f *sparse.Factor }
+
+func (s sparseFactor) Factorize(diag, off []float64) error {
+	err := s.f.Factorize(diag, off)
+	var npd *sparse.NotPositiveDefiniteError
+	if errors.As(err, &npd) {
+		return &pivotError{row: npd.Row, pivot: npd.Pivot}
+	}
+	return err
 }
 
-func newDenseFactor(n int, rows, cols []int) *denseFactor {
-	return &denseFactor{
-		n: n, rows: rows, cols: cols,
-		a:  mat.NewSymDense(max(n, 1), nil),
-		bv: mat.NewVecDense(max(n, 1), nil),
-		xv: mat.NewVecDense(max(n, 1), nil),
-	}
-}
+func (s sparseFactor) Solve(dst, b []float64) { s.f.Solve(dst, b) }
 
-func (d *denseFactor) Factorize(diag, off []float64) error {
-	for i := 0; i < d.n; i++ {
-		for j := i; j < d.n; j++ {
-			d.a.SetSym(i, j, 0)
-		}
-		d.a.SetSym(i, i, diag[i])
+// newFactorizer analyses the pattern once: a minimum-degree ordering and
+// symbolic factorisation by model/sparse (or gonum's dense Cholesky when
+// dense is set, for tests).
+func newFactorizer(n int, rows, cols []int, dense bool) (factorizer, error) {
+	if dense {
+		return newDenseFactor(n, rows, cols), nil
 	}
-	for k, v := range off {
-		i, j := d.rows[k], d.cols[k]
-		d.a.SetSym(i, j, d.a.At(i, j)+v)
+	sym, err := sparse.Analyze(n, rows, cols, sparse.Options{})
+	if err != nil {
+		return nil, err
 	}
-	if !d.chol.Factorize(d.a) {
-		// Locate the first failing pivot for the message.
-		for i := 0; i < d.n; i++ {
-			if diag[i] <= 0 {
-				return &pivotError{row: i, pivot: diag[i]}
-			}
-		}
-		return &pivotError{row: -1}
-	}
-	return nil
-}
-
-func (d *denseFactor) Solve(dst, b []float64) {
-	for i := 0; i < d.n; i++ {
-		d.bv.SetVec(i, b[i])
-	}
-	if err := d.chol.SolveVecTo(d.xv, d.bv); err != nil {
-		for i := range dst[:d.n] {
-			dst[i] = 0
-		}
-		return
-	}
-	for i := 0; i < d.n; i++ {
-		dst[i] = d.xv.AtVec(i)
-	}
+	return sparseFactor{sym.NewFactor()}, nil
 }

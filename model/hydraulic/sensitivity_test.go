@@ -1,0 +1,116 @@
+package hydraulic
+
+import (
+	"math"
+	"testing"
+
+	"plumbline/model/network"
+)
+
+func sensNet(withPRV bool) *network.Network {
+	b := newBuilder().reservoir("R", 80).
+		junction("A", 10, 2).junction("B", 12, 3).junction("C", 8, 4).
+		junction("D", 5, 1).junction("E", 6, 2).junction("F", 4, 3).
+		pipe("P1", "R", "A", 400, 250, 110).
+		pipe("P2", "A", "B", 300, 150, 100).
+		pipe("P3", "B", "C", 350, 150, 90).
+		pipe("P4", "C", "A", 500, 200, 120)
+	if withPRV {
+		b.link(valve("V", network.PressureReducing, 35), "B", "D")
+	} else {
+		b.pipe("V", "B", "D", 200, 150, 100)
+	}
+	b.pipe("P5", "D", "E", 300, 150, 100).
+		pipe("P6", "E", "F", 250, 100, 100).
+		pipe("P7", "D", "F", 400, 100, 130)
+	n := b.net()
+	n.Nodes[5].LeakCoeff, n.Nodes[5].LeakExponent = 0.05, 1.1 // a background leak at E
+	return n
+}
+
+// TestSensitivitiesAgainstFiniteDifferences checks the adjoint
+// derivatives against central finite differences of full solves (the
+// check of gonum optimize/functions: derivatives against differences).
+func TestSensitivitiesAgainstFiniteDifferences(t *testing.T) {
+	for _, withPRV := range []bool{false, true} {
+		net := sensNet(withPRV)
+		s, err := NewSolver(net, Options{FlowTolerance: 1e-10, ImbalanceTolerance: 1e-12})
+		if err != nil {
+			t.Fatal(err)
+		}
+		base, err := s.Solve(nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if withPRV {
+			stateOf(t, base, 4, Active)
+		}
+		obs := []Observation{NodeObservation(3), NodeObservation(5), NodeObservation(6), NodeObservation(0),
+			LinkObservation(1), LinkObservation(4), LinkObservation(6), LinkObservation(0)}
+		sens, err := s.Sensitivities(base, obs)
+		if err != nil {
+			t.Fatal(err)
+		}
+		value := func(sol *Solution, o Observation) float64 {
+			if o.Node >= 0 {
+				return sol.Head[o.Node]
+			}
+			return sol.Flow[o.Link]
+		}
+		nn, nl := len(net.Nodes), len(net.Links)
+		demand := make([]float64, nn)
+		for i := range demand {
+			demand[i] = net.Nodes[i].Demand
+		}
+		const dq = 1e-3
+		for i := 0; i < nn; i++ {
+			if net.Nodes[i].IsFixedHead() {
+				continue
+			}
+			var vals [2][]float64
+			for si, sign := range []float64{1, -1} {
+				dm := append([]float64(nil), demand...)
+				dm[i] += sign * dq
+				sol, err := s.Solve(&Conditions{Demand: dm}, base)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for _, o := range obs {
+					vals[si] = append(vals[si], value(sol, o))
+				}
+			}
+			for k := range obs {
+				fd := (vals[0][k] - vals[1][k]) / (2 * dq)
+				got := sens.Outflow[k][i]
+				if math.Abs(got-fd) > 1e-6+1e-4*math.Abs(fd) {
+					t.Errorf("PRV %v: d obs%d(%+v)/d outflow at %s: adjoint %.8g, finite difference %.8g", withPRV, k, obs[k], net.Nodes[i].ID, got, fd)
+				}
+			}
+		}
+		const de = 1e-4
+		for l := 0; l < nl; l++ {
+			var vals [2][]float64
+			for si, sign := range []float64{1, -1} {
+				f := make([]float64, nl)
+				for j := range f {
+					f[j] = 1
+				}
+				f[l] = math.Exp(sign * de)
+				sol, err := s.Solve(&Conditions{ResistanceFactor: f}, base)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for _, o := range obs {
+					vals[si] = append(vals[si], value(sol, o))
+				}
+			}
+			for k := range obs {
+				fd := (vals[0][k] - vals[1][k]) / (2 * de)
+				got := sens.Resistance[k][l]
+				if math.Abs(got-fd) > 1e-6+1e-4*math.Abs(fd) {
+					t.Errorf("PRV %v: d obs%d(%+v)/d ln φ of %s: adjoint %.8g, finite difference %.8g", withPRV, k, obs[k], net.Links[l].ID, got, fd)
+				}
+			}
+		}
+	}
+}
