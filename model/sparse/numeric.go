@@ -16,7 +16,7 @@ type Factor struct {
 	head   []int     // per supernode: first descendant waiting to update it
 	link   []int     // next in that waiting list
 	next   []int     // per supernode: next row (local index) not yet used
-	tmp    []float64 // update columns, 4×maxRows
+	tmp    []float64 // dense update block
 	x      []float64 // permuted right-hand side / solution
 	ok     bool      // the last Factorize succeeded
 }
@@ -104,76 +104,83 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 // update subtracts from supernode J (values LJ, r rows, first column f0) the
 // contribution of descendant K (values LK, rK rows, kK columns) through its
 // rows p..q-1, which lie in J's columns: for each such row c and every row i
-// >= c of K, L_J(i, c) -= Σ_t L_K(i,t) L_K(c,t).
+// >= c of K, L_J(i, c) -= Σ_t L_K(i,t) L_K(c,t). The product goes to a dense
+// scratch block by gemmNT, four target columns at a time from their
+// diagonal down, and is then scattered through the relative row positions.
 func (f *Factor) update(LJ []float64, r, f0 int, LK []float64, rK, kK int, rowsK []int, p, q int) {
 	relpos := f.relpos
 	m := rK - p
-	tmp := f.tmp[:m]
-	for c := p; c < q; c++ {
-		// tmp[i-c] = Σ_t L_K(i,t) L_K(c,t) for i = c..rK-1.
-		w := tmp[:rK-c]
-		clear(w)
-		t := 0
-		for ; t+4 <= kK; t += 4 {
-			c0 := LK[t*rK+c : t*rK+rK]
-			c1 := LK[(t+1)*rK+c : (t+1)*rK+rK]
-			c2 := LK[(t+2)*rK+c : (t+2)*rK+rK]
-			c3 := LK[(t+3)*rK+c : (t+3)*rK+rK]
-			a0, a1, a2, a3 := c0[0], c1[0], c2[0], c3[0]
-			c0 = c0[:len(w)]
-			c1 = c1[:len(w)]
-			c2 = c2[:len(w)]
-			c3 = c3[:len(w)]
-			for i := range w {
-				w[i] += a0*c0[i] + a1*c1[i] + a2*c2[i] + a3*c3[i]
-			}
-		}
-		for ; t < kK; t++ {
-			c0 := LK[t*rK+c : t*rK+rK]
-			a0 := c0[0]
-			c0 = c0[:len(w)]
-			for i := range w {
-				w[i] += a0 * c0[i]
-			}
-		}
-		col := LJ[(rowsK[c]-f0)*r : (rowsK[c]-f0+1)*r]
-		rws := rowsK[c:rK]
+	nq := q - p
+	W := f.tmp[:m*nq]
+	clear(W)
+	A := LK[p:]
+	for j0 := 0; j0 < nq; j0 += 4 {
+		nb := min(4, nq-j0)
+		gemmNT(m-j0, nb, kK, A[j0:], rK, A[j0:], rK, W[j0*m+j0:], m)
+	}
+	for c := 0; c < nq; c++ {
+		lc := rowsK[p+c] - f0
+		col := LJ[lc*r : (lc+1)*r]
+		w := W[c*m+c : (c+1)*m]
+		rws := rowsK[p+c : rK]
 		rws = rws[:len(w)]
+		if rws[len(rws)-1]-rws[0] == len(rws)-1 {
+			// Consecutive rows land in consecutive places.
+			dst := col[relpos[rws[0]]:]
+			dst = dst[:len(w)]
+			for i, v := range w {
+				dst[i] += v
+			}
+			continue
+		}
 		for i, v := range w {
-			col[relpos[rws[i]]] -= v
+			col[relpos[rws[i]]] += v
 		}
 	}
 }
 
+// panelBlock is the column block width of the panel factorisation.
+const panelBlock = 16
+
 // factorPanel factors the dense r×k column-major panel L (leading dimension
 // r) in place: Cholesky of the k×k diagonal block and the triangular solve of
-// the block below it, column by column (right-looking inside the panel). It
-// returns the local column of a failed pivot, or -1.
+// the block below it. Blocks of panelBlock columns are factored column by
+// column, then the columns right of the block are updated by gemmNT
+// (right-looking blocked Cholesky, Golub & Van Loan 2013, §4.2.8). It
+// returns the local column of a failed pivot, or -1. The strict upper
+// triangle of the diagonal block is scratch.
 func factorPanel(L []float64, r, k int) int {
-	for t := 0; t < k; t++ {
-		ct := L[t*r : (t+1)*r]
-		d := ct[t]
-		if !(d > 0) || math.IsInf(d, 1) {
-			return t
-		}
-		d = math.Sqrt(d)
-		ct[t] = d
-		inv := 1 / d
-		below := ct[t+1:]
-		for i := range below {
-			below[i] *= inv
-		}
-		for t2 := t + 1; t2 < k; t2++ {
-			a := ct[t2]
-			if a == 0 {
-				continue
+	for t0 := 0; t0 < k; t0 += panelBlock {
+		t1 := min(t0+panelBlock, k)
+		for t := t0; t < t1; t++ {
+			ct := L[t*r : (t+1)*r]
+			d := ct[t]
+			if !(d > 0) || math.IsInf(d, 1) {
+				return t
 			}
-			c2 := L[t2*r+t2 : (t2+1)*r]
-			src := ct[t2:r]
-			src = src[:len(c2)]
-			for i := range c2 {
-				c2[i] -= a * src[i]
+			d = math.Sqrt(d)
+			ct[t] = d
+			inv := 1 / d
+			below := ct[t+1:]
+			for i := range below {
+				below[i] *= inv
 			}
+			for t2 := t + 1; t2 < t1; t2++ {
+				a := ct[t2]
+				if a == 0 {
+					continue
+				}
+				c2 := L[t2*r+t2 : (t2+1)*r]
+				src := ct[t2:r]
+				src = src[:len(c2)]
+				for i := range c2 {
+					c2[i] -= a * src[i]
+				}
+			}
+		}
+		for j0 := t1; j0 < k; j0 += 4 {
+			nb := min(4, k-j0)
+			gemmNT(r-j0, nb, t1-t0, L[t0*r+j0:], r, L[t0*r+j0:], r, L[j0*r+j0:], r)
 		}
 	}
 	return -1

@@ -85,8 +85,9 @@ type Symbolic struct {
 	rowIdx []int
 	// Numeric values of supernode s: a dense column-major r×k block with
 	// leading dimension r at values[valPtr[s]:valPtr[s+1]].
-	valPtr  []int
-	maxRows int
+	valPtr    []int
+	maxRows   int
+	maxUpdate int // largest dense update block, (r-k)² over supernodes
 
 	diagPos []int // original i -> position of L(i,i) block entry in values
 	offPos  []int // input entry k -> position in values
@@ -171,7 +172,7 @@ func (s *Symbolic) NewFactor() *Factor {
 		head:   make([]int, ns),
 		link:   make([]int, ns),
 		next:   make([]int, ns),
-		tmp:    make([]float64, 4*s.maxRows),
+		tmp:    make([]float64, s.maxUpdate),
 		x:      make([]float64, s.n),
 	}
 }

@@ -397,6 +397,9 @@ func (s *Symbolic) superStructure(pptr, padj []int) {
 		if r > s.maxRows {
 			s.maxRows = r
 		}
+		if e := (r - (l - f)) * (r - (l - f)); e > s.maxUpdate {
+			s.maxUpdate = e
+		}
 		s.valPtr[k+1] = s.valPtr[k] + r*(l-f)
 	}
 	s.rowIdx = rowIdx
