@@ -79,15 +79,15 @@ func (b *builder) addNode(n network.Node, p vec) int {
 	return len(b.nodes) - 1
 }
 
-// addLink appends a straight link from node i to node j; Length is the
-// length of its geometry on the sphere, to 1 cm.
+// addLink appends a straight link from node i to node j; a pipe's Length
+// is the length of its geometry on the sphere, to 1 cm.
 func (b *builder) addLink(l network.Link, i, j int, c linkClass) int {
 	l.From, l.To = i, j
 	a, z := b.nodes[i].Coord, b.nodes[j].Coord
 	b.geom = append(b.geom, a, z)
 	k := len(b.geom)
 	l.Geometry = b.geom[k-2 : k : k]
-	if l.Kind != network.Pump {
+	if l.Kind == network.Pipe {
 		l.Length = roundTo(sphereLength(a, z), 0.01)
 	}
 	b.links = append(b.links, l)

@@ -14,15 +14,14 @@ var DefaultOrigin = network.Point{Lon: -102.4817, Lat: 41.2873}
 // vec is a position in local metres: x east, y north of the origin.
 type vec struct{ x, y float64 }
 
-func (a vec) add(b vec) vec           { return vec{a.x + b.x, a.y + b.y} }
-func (a vec) norm() float64           { return math.Hypot(a.x, a.y) }
-func (a vec) dist2(b vec) float64     { dx, dy := a.x-b.x, a.y-b.y; return dx*dx + dy*dy }
-func (a vec) scale(s float64) vec     { return vec{a.x * s, a.y * s} }
-func polar(r, theta float64) vec      { return vec{r * math.Cos(theta), r * math.Sin(theta)} }
-func (a vec) dist(b vec) float64      { return math.Sqrt(a.dist2(b)) }
-func lerp(a, b vec, t float64) vec    { return vec{a.x + (b.x-a.x)*t, a.y + (b.y-a.y)*t} }
-func mid(a, b vec) vec                { return lerp(a, b, 0.5) }
-func roundTo(v, step float64) float64 { return math.Round(v/step) * step }
+func (a vec) add(b vec) vec        { return vec{a.x + b.x, a.y + b.y} }
+func (a vec) norm() float64        { return math.Hypot(a.x, a.y) }
+func (a vec) dist2(b vec) float64  { dx, dy := a.x-b.x, a.y-b.y; return dx*dx + dy*dy }
+func (a vec) scale(s float64) vec  { return vec{a.x * s, a.y * s} }
+func polar(r, theta float64) vec   { return vec{r * math.Cos(theta), r * math.Sin(theta)} }
+func (a vec) dist(b vec) float64   { return math.Sqrt(a.dist2(b)) }
+func lerp(a, b vec, t float64) vec { return vec{a.x + (b.x-a.x)*t, a.y + (b.y-a.y)*t} }
+func mid(a, b vec) vec             { return lerp(a, b, 0.5) }
 
 const degree = math.Pi / 180
 
@@ -58,4 +57,15 @@ func sphereLength(a, b network.Point) float64 {
 	dx := (b.Lon - a.Lon) * degree * math.Cos(phi)
 	dy := (b.Lat - a.Lat) * degree
 	return network.EarthRadius * math.Hypot(dx, dy)
+}
+
+// roundTo rounds v to a multiple of step; for steps below 1 (0.1, 0.01,
+// 0.0001) it divides by the integer 1/step, so that the result is the
+// double nearest the decimal and prints short.
+func roundTo(v, step float64) float64 {
+	if step < 1 {
+		inv := math.Round(1 / step)
+		return math.Round(v*inv) / inv
+	}
+	return math.Round(v/step) * step
 }
