@@ -30,8 +30,7 @@
 // simulator publishes plain payloads and does not use it. Min and max are
 // plausible bounds in canonical units; when only one is given the other is
 // unbounded (±Inf). A sensor without a unit reads in its quantity's
-// canonical unit. Sensor units are not checked here (model/units and
-// `plumbline check` do that).
+// canonical unit; a unit must be one model/units knows for the quantity.
 //
 // Event times are RFC 3339, or a Go duration meaning an offset from the
 // scenario start (`start: 36h`). Every event must start inside

@@ -17,6 +17,7 @@ import (
 
 	"plumbline/model/finding"
 	"plumbline/model/telemetry"
+	"plumbline/model/units"
 )
 
 // rawScenario is the file as written, before conversion. Times and
@@ -318,6 +319,9 @@ func decodeSensors(seq *yaml.Node, file string) ([]telemetry.Sensor, []int, []er
 		}
 		if sn.Unit == "" && q != 0 {
 			sn.Unit = q.CanonicalUnit()
+		}
+		if rs.Unit != "" && q != 0 && !units.Known(q, rs.Unit) {
+			add(valueLine(item, "unit"), "%s: unit %q is not a %s unit (known: %s)", where, rs.Unit, q, strings.Join(units.Names(q), ", "))
 		}
 		switch {
 		case rs.Min != nil && rs.Max != nil:
