@@ -221,8 +221,9 @@ func (s *Scenario) NoiseSD(sn *telemetry.Sensor) (float64, bool) {
 
 // Truth returns the scenario's events as ground truth (truth.json), with
 // each event's zone taken from the network when net is not nil: a leak's
-// node zone, a blockage's link zone (its From node's zone, else its To
-// node's), a sensor fault's sensor zone (the sensor's own Zone, else that
+// node zone, a blockage's link zone (its To node's zone, else its From
+// node's: the zone a link feeds, as for an inlet meter; model/sim and
+// model/score use the same rule), a sensor fault's sensor zone (the sensor's own Zone, else that
 // of the node or link it sits on).
 func (s *Scenario) Truth(net *network.Network) []finding.Event {
 	out := make([]finding.Event, 0, len(s.Events))
@@ -270,8 +271,8 @@ func nodeZone(net *network.Network, id string) string {
 	return ""
 }
 
-// linkZone returns the zone of the link id: its From node's zone, else its
-// To node's; "" if unknown or net is nil.
+// linkZone returns the zone of the link id: its To node's zone, else its
+// From node's; "" if unknown or net is nil.
 func linkZone(net *network.Network, id string) string {
 	if net == nil {
 		return ""
@@ -281,11 +282,11 @@ func linkZone(net *network.Network, id string) string {
 		return ""
 	}
 	l := net.Links[i]
-	if l.From >= 0 && l.From < len(net.Nodes) && net.Nodes[l.From].Zone != "" {
-		return net.Nodes[l.From].Zone
-	}
-	if l.To >= 0 && l.To < len(net.Nodes) {
+	if l.To >= 0 && l.To < len(net.Nodes) && net.Nodes[l.To].Zone != "" {
 		return net.Nodes[l.To].Zone
+	}
+	if l.From >= 0 && l.From < len(net.Nodes) {
+		return net.Nodes[l.From].Zone
 	}
 	return ""
 }

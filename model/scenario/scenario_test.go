@@ -105,7 +105,8 @@ func TestLoadBrookfield(t *testing.T) {
 	}
 
 	truth := s.Truth(testNetwork())
-	wantZones := []string{"north", "north", "south", "north", "north", "hill"}
+	// P-6 runs from J-2 (south) to J-6 (north): a link takes the zone of its To node.
+	wantZones := []string{"north", "north", "north", "north", "north", "hill"}
 	for i, ev := range truth {
 		if ev.Zone != wantZones[i] || ev.At != s.Events[i].At || !ev.Start.Equal(s.Events[i].Start) || ev.Kind != s.Events[i].Kind {
 			t.Errorf("truth[%d]: got %+v, want zone %s and the event's kind, at, start", i, ev, wantZones[i])

@@ -159,7 +159,7 @@ func (q *queue) Pop() any {
 }
 
 // elementZone returns the zone of the node or link named id: a node's
-// zone, or a link's From node's zone, else its To node's; "" when unknown
+// zone, or a link's To node's zone (the zone it feeds), else its From node's; "" when unknown
 // or net is nil.
 func elementZone(net *network.Network, id string) string {
 	if net == nil {
@@ -173,7 +173,7 @@ func elementZone(net *network.Network, id string) string {
 		return ""
 	}
 	l := &net.Links[i]
-	for _, n := range []int{l.From, l.To} {
+	for _, n := range []int{l.To, l.From} {
 		if n >= 0 && n < len(net.Nodes) && net.Nodes[n].Zone != "" {
 			return net.Nodes[n].Zone
 		}

@@ -221,7 +221,7 @@ func located(k finding.Kind) bool { return k == finding.Leak || k == finding.Blo
 //     the scenario span for a fair rate).
 //
 // Zones: an event's zone is its own Zone, else that of its node or link in
-// the network (a link's From node, else its To node), else for a sensor
+// the network (a link's To node, else its From node, as model/sim does), else for a sensor
 // fault Options.SensorZones; a finding's zone is its own Zone, else that
 // of its best candidate. net may be nil: no distances, zones as given.
 func Score(truth []finding.Event, findings []finding.Finding, net *network.Network, opts Options) Report {

@@ -48,7 +48,7 @@ func TestScoreMixed(t *testing.T) {
 		{Kind: finding.Leak, Zone: "south", Raised: at(14), Candidates: cands("A", "E")},       // 1: detects the leak, rank 2, 400 m
 		{Kind: finding.Blockage, Raised: at(19), Candidates: cands("BC")},                      // 2: before the blockage: false
 		{Kind: finding.Leak, Zone: "south", Raised: at(22), Candidates: cands("C")},            // 3: wrong kind for the blockage, the leak already found: false
-		{Kind: finding.Blockage, Zone: "north", Raised: at(26), Candidates: cands("CF", "BC")}, // 4: detects the blockage, rank 2, 150 m
+		{Kind: finding.Blockage, Zone: "south", Raised: at(26), Candidates: cands("CF", "BC")}, // 4: detects the blockage, rank 2, 150 m
 		{Kind: finding.SensorFault, Zone: "north", Raised: at(31), Candidates: cands("P-1")},   // 5: detects the fault
 	}
 	r := Score(truth, findings, handNetwork(), Options{Start: t0, End: t0.Add(30 * 24 * time.Hour), SensorZones: map[string]string{"P-1": "north"}})
@@ -80,7 +80,7 @@ func TestScoreMixed(t *testing.T) {
 	if leak.Localised == nil || *leak.Localised {
 		t.Errorf("leak 400 m away is not localised within 300 m")
 	}
-	if !block.Detected || *block.Finding != 4 || block.Rank != 2 || block.Zone != "north" {
+	if !block.Detected || *block.Finding != 4 || block.Rank != 2 || block.Zone != "south" {
 		t.Errorf("blockage: got %+v", block)
 	}
 	approx(t, "blockage distance CF→BC (by hand: 50 + 100)", block.DistanceM, 150, 1e-9)
@@ -119,12 +119,13 @@ func TestScoreMixed(t *testing.T) {
 			t.Errorf("false finding %d: got reason %q, want %q", ff.Index, ff.Reason, want)
 		}
 	}
-	// Finding 2 has no zone: it takes that of its best candidate BC (B: north).
-	if r.FalseFindings[1].Zone != "north" {
-		t.Errorf("zone from the best candidate: got %q, want north", r.FalseFindings[1].Zone)
+	// Finding 2 has no zone: it takes that of its best candidate BC, the
+	// zone of its To node C: south.
+	if r.FalseFindings[1].Zone != "south" {
+		t.Errorf("zone from the best candidate: got %q, want south", r.FalseFindings[1].Zone)
 	}
-	if len(r.FalseByZone) != 2 || r.FalseByZone[0].Zone != "north" || r.FalseByZone[0].Count != 1 || r.FalseByZone[1].Count != 2 {
-		t.Errorf("false by zone: got %+v, want north 1, south 2", r.FalseByZone)
+	if len(r.FalseByZone) != 1 || r.FalseByZone[0].Zone != "south" || r.FalseByZone[0].Count != 3 {
+		t.Errorf("false by zone: got %+v, want south 3", r.FalseByZone)
 	}
 }
 
