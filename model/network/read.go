@@ -920,26 +920,32 @@ func nearest(s string, words []string) string {
 	return best
 }
 
-// editDistance is the Levenshtein distance between a and b.
+// editDistance is the optimal-string-alignment distance between a and b:
+// insertions, deletions, substitutions and swaps of neighbours.
 func editDistance(a, b string) int {
 	if len(a) > 64 || len(b) > 64 {
 		return 99
 	}
-	prev := make([]int, len(b)+1)
-	cur := make([]int, len(b)+1)
-	for j := range prev {
-		prev[j] = j
+	// d[i][j] is the distance between a[:i] and b[:j].
+	d := make([][]int, len(a)+1)
+	for i := range d {
+		d[i] = make([]int, len(b)+1)
+		d[i][0] = i
+	}
+	for j := range d[0] {
+		d[0][j] = j
 	}
 	for i := 1; i <= len(a); i++ {
-		cur[0] = i
 		for j := 1; j <= len(b); j++ {
-			c := prev[j-1]
-			if a[i-1] != b[j-1] {
-				c++
+			c := 1
+			if a[i-1] == b[j-1] {
+				c = 0
 			}
-			cur[j] = min(c, prev[j]+1, cur[j-1]+1)
+			d[i][j] = min(d[i-1][j-1]+c, d[i-1][j]+1, d[i][j-1]+1)
+			if i > 1 && j > 1 && a[i-1] == b[j-2] && a[i-2] == b[j-1] {
+				d[i][j] = min(d[i][j], d[i-2][j-2]+1) // transposition
+			}
 		}
-		prev, cur = cur, prev
 	}
-	return prev[len(b)]
+	return d[len(a)][len(b)]
 }
