@@ -49,6 +49,10 @@ type Settings struct {
 	// DailyVariation is the standard deviation of each zone's day factor
 	// (default 0.05): one day is drier or busier than the next.
 	DailyVariation float64
+	// WeekendPattern, when set, replaces every junction's pattern on
+	// Saturdays and Sundays (otherwise "<pattern>-weekend" is used where
+	// the network has one).
+	WeekendPattern string
 	// NoDemandNoise switches both random demand terms off (for tests of
 	// the physics).
 	NoDemandNoise bool
@@ -173,7 +177,8 @@ type runner struct {
 	pumpTo  []int     // pump link → tank node it fills, -1 none
 	pumpOn  []bool
 	dnoise  []float64 // AR(1) state per node
-	dayF    []float64 // per zone day factor
+	dayF    []float64 // per zone factor of the current day (at its noon)
+	dayNext []float64 // and of the next day
 	day     int
 	dayInit bool
 }
@@ -215,6 +220,7 @@ func newRunner(net *network.Network, s Settings) (*runner, error) {
 	}
 	r.nZones = len(zones)
 	r.dayF = make([]float64, r.nZones)
+	r.dayNext = make([]float64, r.nZones)
 	for i := range net.Nodes {
 		n := &net.Nodes[i]
 		r.zoneOf[i] = -1
@@ -495,14 +501,31 @@ func (r *runner) eventZone(ev Event) string {
 	return ""
 }
 
+func (r *runner) drawDay() float64 {
+	return math.Max(0.5, 1+r.s.DailyVariation*r.rng.NormFloat64())
+}
+
 func (r *runner) setDemand(c *hydraulic.Conditions, t time.Time) {
-	day := int(t.Sub(time.Unix(0, 0)).Hours() / 24)
-	if day != r.day || !r.dayInit {
-		r.day, r.dayInit = day, true
+	// Each zone draws a factor per day, anchored at noon; between two
+	// noons it changes linearly, as weather and habit move demand from one
+	// day to the next without a jump at midnight.
+	hours := t.Sub(time.Unix(0, 0)).Hours() - 12
+	day := int(math.Floor(hours / 24))
+	if !r.dayInit {
+		r.dayInit = true
+		r.day = day
 		for z := range r.dayF {
-			r.dayF[z] = math.Max(0.5, 1+r.s.DailyVariation*r.rng.NormFloat64())
+			r.dayF[z] = r.drawDay()
+			r.dayNext[z] = r.drawDay()
 		}
 	}
+	for ; r.day < day; r.day++ {
+		copy(r.dayF, r.dayNext)
+		for z := range r.dayNext {
+			r.dayNext[z] = r.drawDay()
+		}
+	}
+	frac := hours/24 - float64(day)
 	rho := math.Exp(-r.s.Step.Minutes() / 30)
 	innov := math.Sqrt(1 - rho*rho)
 	for i := range r.net.Nodes {
@@ -511,9 +534,13 @@ func (r *runner) setDemand(c *hydraulic.Conditions, t time.Time) {
 			c.Demand[i] = 0
 			continue
 		}
-		f := demand.PatternAt(r.net, n.Pattern, t, nil)
+		pat := n.Pattern
+		if wd := t.Weekday(); r.s.WeekendPattern != "" && (wd == time.Saturday || wd == time.Sunday) {
+			pat = r.s.WeekendPattern
+		}
+		f := demand.PatternAt(r.net, pat, t, nil)
 		if z := r.zoneOf[i]; z >= 0 {
-			f *= r.dayF[z]
+			f *= r.dayF[z] + (r.dayNext[z]-r.dayF[z])*frac
 		}
 		if r.s.DemandNoise > 0 {
 			r.dnoise[i] = rho*r.dnoise[i] + innov*r.s.DemandNoise*r.rng.NormFloat64()

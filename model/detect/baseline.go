@@ -1,0 +1,151 @@
+package detect
+
+import (
+	"math"
+	"sort"
+)
+
+// Baseline learns the normal level of one hourly series by hour of day
+// and its scatter about that level: an exponentially weighted mean and
+// variance per hour-of-day bin, and one pooled variance over all bins.
+// Demand noise is multiplicative, so the scatter of a morning peak is
+// larger than that of the night; a bin's own variance, with only a
+// fortnight of values, is shrunk towards the pooled one (a weighted mean
+// with the pool counting as PriorWeight values). The weight of a new value
+// is 1/n for the first Memory values of a bin, then 1/Memory: a plain mean
+// while learning, then a moving one.
+type Baseline struct {
+	Mean    [24]float64
+	Count   [24]int
+	BinVar  [24]float64
+	BinNVar [24]int
+	Var     float64
+	NVar    int
+	// Memory is the number of values (days, for a bin) the moving
+	// averages remember.
+	Memory int
+	// Floor is the smallest σ reported.
+	Floor float64
+	// Relearn counts the hours left in which new values replace the bin
+	// means outright: after a change has been accepted (a leak found), the
+	// day after it teaches each hour its new normal.
+	Relearn int
+}
+
+// Learned reports whether bin h has seen at least min values.
+func (b *Baseline) Learned(h, min int) bool { return b.Count[h] >= min }
+
+// PriorWeight is how many values the pooled variance counts for when it
+// is blended with a bin's own.
+const PriorWeight = 5
+
+// Sigma returns the pooled standard deviation, at least Floor.
+func (b *Baseline) Sigma() float64 {
+	s := 0.0
+	if b.NVar > 1 {
+		s = math.Sqrt(b.Var)
+	}
+	return math.Max(s, b.Floor)
+}
+
+// SigmaAt returns the standard deviation for hour bin h: the bin's own
+// variance shrunk towards the pooled one, at least Floor.
+func (b *Baseline) SigmaAt(h int) float64 {
+	if b.NVar < 2 {
+		return b.Floor
+	}
+	n := float64(b.BinNVar[h])
+	v := (n*b.BinVar[h] + PriorWeight*b.Var) / (n + PriorWeight)
+	return math.Max(math.Sqrt(v), b.Floor)
+}
+
+// Deviation returns x minus the bin's mean.
+func (b *Baseline) Deviation(h int, x float64) float64 { return x - b.Mean[h] }
+
+// Update adds x to bin h.
+func (b *Baseline) Update(h int, x float64) {
+	if math.IsNaN(x) {
+		return
+	}
+	if b.Relearn > 0 {
+		b.Mean[h] = x
+		b.Relearn--
+		return
+	}
+	mem := b.Memory
+	if mem <= 0 {
+		mem = 14
+	}
+	if b.Count[h] > 0 {
+		d := x - b.Mean[h]
+		b.NVar++
+		wv := 1 / float64(min(b.NVar, 24*mem))
+		b.Var += wv * (d*d - b.Var)
+		b.BinNVar[h]++
+		wb := 1 / float64(min(b.BinNVar[h], mem))
+		b.BinVar[h] += wb * (d*d - b.BinVar[h])
+	}
+	b.Count[h]++
+	w := 1 / float64(min(b.Count[h], mem))
+	b.Mean[h] += w * (x - b.Mean[h])
+}
+
+// Relearning reports whether the baseline is taking in a new normal.
+func (b *Baseline) Relearning() bool { return b.Relearn > 0 }
+
+// Shift moves every bin's mean by d: after a change has been accepted as
+// the new normal (a found leak), later tests look for changes beyond it.
+func (b *Baseline) Shift(d float64) {
+	for h := range b.Mean {
+		b.Mean[h] += d
+	}
+}
+
+// nightBaseline returns the mean and standard deviation of past nights
+// after one pass that sets aside nights more than 3.5 robust σ (MAD ×
+// 1.4826, Huber 1981) from the median: one odd night (a fire hydrant
+// used, a meter glitch) must not widen the band for a month.
+func nightBaseline(xs []float64) (mean, sd float64) {
+	med, mad := medianMAD(xs)
+	cut := 3.5 * 1.4826 * mad
+	var keep []float64
+	for _, x := range xs {
+		if cut == 0 || math.Abs(x-med) <= cut {
+			keep = append(keep, x)
+		}
+	}
+	for _, x := range keep {
+		mean += x
+	}
+	mean /= float64(len(keep))
+	for _, x := range keep {
+		sd += (x - mean) * (x - mean)
+	}
+	if len(keep) > 1 {
+		sd = math.Sqrt(sd / float64(len(keep)-1))
+	}
+	return mean, sd
+}
+
+// median and mad of a small sample, for the night baseline.
+func medianMAD(xs []float64) (med, mad float64) {
+	if len(xs) == 0 {
+		return 0, 0
+	}
+	s := append([]float64(nil), xs...)
+	sort.Float64s(s)
+	med = quantileSorted(s)
+	for i := range s {
+		s[i] = math.Abs(s[i] - med)
+	}
+	sort.Float64s(s)
+	return med, quantileSorted(s)
+}
+
+func quantileSorted(s []float64) float64 {
+	n := len(s)
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
+}

@@ -1,0 +1,830 @@
+package detect
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"plumbline/model/demand"
+	"plumbline/model/finding"
+	"plumbline/model/hydraulic"
+	"plumbline/model/network"
+	"plumbline/model/telemetry"
+	"plumbline/model/units"
+)
+
+// ringHours is how many hours of hourly evidence each series keeps: a
+// week, enough to look back over a change found on the third night.
+const ringHours = 7 * 24
+
+// Detector turns one snapshot per model step into zone balances, sensor
+// residuals and findings. It is a plain sequential state machine: Step
+// must be called with snapshots in time order, from one goroutine. Its
+// state can be saved with State and restored with Restore, so that a
+// restart resumes where it stopped.
+type Detector struct {
+	cfg    Config
+	net    *network.Network
+	solver *hydraulic.Solver
+
+	sens     []sensorInfo
+	bySensor map[string]int
+	zones    []zoneInfo
+	nodeZone []int
+	zoneLoc  map[string]*time.Location
+
+	base    []float64 // base × pattern per node, this step
+	cond    hydraulic.Conditions
+	prevExp *hydraulic.Solution
+	prevMat *hydraulic.Solution
+
+	designNight, designBurst, designResid CUSUM
+
+	st state
+}
+
+type sensorInfo struct {
+	s     telemetry.Sensor
+	node  int // node index (pressure, head, level) or -1
+	link  int // link index (flow) or -1
+	zone  int // zone index or -1
+	floor float64
+	// evidence: a pressure or head sensor whose residual is tested
+	evidence bool
+}
+
+type zoneInfo struct {
+	z          Zone
+	inlets     []meter
+	outlets    []meter
+	junctions  []int
+	evidence   []int // sensor indices of the zone's pressure/head sensors
+	nightSteps int   // steps in one night window
+}
+
+type meter struct {
+	sensor int
+	sign   float64 // +1: reading positive into the zone
+}
+
+// state is everything Step changes; it is what State saves.
+type state struct {
+	Steps     int
+	Hour      time.Time
+	SensorAcc []acc
+	ZoneAcc   []acc
+	ZoneExp   []acc
+	Sensors   []sensorState
+	Zones     []zoneState
+	Findings  []finding.Finding
+	// MeanMult is each zone's moving mean inflow-matched multiplier, for
+	// the average operating point at which signatures are computed.
+	MeanMult []float64
+}
+
+type acc struct {
+	Sum float64
+	N   int
+}
+
+type sensorState struct {
+	Base     Baseline
+	Up, Down CUSUM
+	Ring     ring
+	Excluded bool
+	// Unchanged is how long the sensor's value has not moved, for the
+	// stuck test; Last the last value; BadSteps counts consecutive
+	// steps flagged by ingest (stuck, spike, out of range).
+	Unchanged time.Duration
+	Last      float64
+	BadSteps  int
+	Spikes    []time.Time
+	Quiet     int // consecutive quiet hours while excluded
+}
+
+type zoneState struct {
+	Base Baseline
+	// Level follows the zone's hourly deviation with a six-hour time
+	// constant; Jump learns the scatter of the deviation about it. A burst
+	// is a jump above the recent level; a dry or busy day moves every hour
+	// of the day alike and does not jump.
+	Level        float64
+	LevelN       int
+	Jump         Baseline
+	Burst, Night CUSUM
+	Ring         ring
+	Nights       []float64 // adjusted mean night imbalance of quiet nights
+	NightSum     float64
+	NightN       int
+	NightMin     float64
+	NightInSum   float64
+	InNight      bool
+	NightStart   time.Time
+	Offset       float64 // shift accepted into the night baseline by earlier findings
+	LeakQuiet    time.Time
+	ResidQuiet   time.Time
+	NightLearned int
+}
+
+// ring is a fixed-length hourly series: Vals[i] belongs to hour
+// End − (len−1−i) h; NaN marks a missing hour.
+type ring struct {
+	End  time.Time
+	Vals []float64
+}
+
+func (r *ring) push(t time.Time, v float64) {
+	r.End = t
+	r.Vals = append(r.Vals, v)
+	if len(r.Vals) > ringHours {
+		r.Vals = r.Vals[len(r.Vals)-ringHours:]
+	}
+}
+
+// since returns the mean and count of the values at or after t.
+func (r *ring) since(t time.Time) (mean float64, n int) {
+	sum := 0.0
+	for i, v := range r.Vals {
+		at := r.End.Add(-time.Duration(len(r.Vals)-1-i) * time.Hour)
+		if at.Before(t) || math.IsNaN(v) {
+			continue
+		}
+		sum += v
+		n++
+	}
+	if n == 0 {
+		return 0, 0
+	}
+	return sum / float64(n), n
+}
+
+// StepResult is what one step computed: for the store, the operator page
+// and the report.
+type StepResult struct {
+	Time time.Time
+	// Expected is each sensor's model value (inflow-matched solve) and
+	// Residual measured minus expected, canonical units; NaN where the
+	// sensor had no usable reading.
+	Expected, Residual []float64
+	Zones              []ZoneBalance
+	// Nights holds the night-flow figures of zones whose night window
+	// ended at this step.
+	Nights []NightFlow
+	// Findings raised at this step.
+	Findings []finding.Finding
+	// Iterations of the two solves.
+	Iterations int
+}
+
+// ZoneBalance is one zone's water balance at one step, L/s.
+type ZoneBalance struct {
+	Zone        string
+	InflowLPS   float64 // measured net inflow
+	ExpectedLPS float64 // expected consumption (patterns) plus modelled leakage
+	Imbalance   float64 // inflow minus expected
+	Multiplier  float64 // inflow-matched demand multiplier
+	// CUSUM statistics of the night and burst tests, and their thresholds.
+	NightStat, NightThreshold, BurstStat, BurstThreshold float64
+}
+
+// NightFlow is one zone's night: the minimum inflow in the night window,
+// the legitimate-use allowance, and the excess, L/s.
+type NightFlow struct {
+	Zone       string
+	Night      time.Time // start of the window
+	MinLPS     float64
+	MeanLPS    float64
+	AllowLPS   float64
+	ExcessLPS  float64
+	Imbalance  float64 // mean imbalance in the window
+	Statistic  float64 // night CUSUM after this night
+	Threshold  float64
+	NightsUsed int // nights in the baseline
+}
+
+// New builds a detector for cfg: the solver, the zone and sensor tables
+// and the tests' thresholds from the wanted false-alarm rate.
+func New(cfg Config) (*Detector, error) {
+	cfg.defaults()
+	if err := cfg.validate(); err != nil {
+		return nil, err
+	}
+	solver, err := hydraulic.NewSolver(cfg.Network, hydraulic.Options{})
+	if err != nil {
+		return nil, fmt.Errorf("detector: %w", err)
+	}
+	d := &Detector{cfg: cfg, net: cfg.Network, solver: solver, bySensor: map[string]int{}, zoneLoc: map[string]*time.Location{}}
+	d.nodeZone = make([]int, len(d.net.Nodes))
+	zoneIdx := map[string]int{}
+	for i, z := range cfg.Zones {
+		zoneIdx[z.ID] = i
+		d.zoneLoc[z.ID] = z.Location
+	}
+	for i := range d.net.Nodes {
+		d.nodeZone[i] = -1
+		if zi, ok := zoneIdx[d.net.Nodes[i].Zone]; ok {
+			d.nodeZone[i] = zi
+		}
+	}
+	d.zones = make([]zoneInfo, len(cfg.Zones))
+	for i, z := range cfg.Zones {
+		d.zones[i].z = z
+		span := z.NightEnd - z.NightStart
+		if span <= 0 {
+			span += 24 * time.Hour
+		}
+		d.zones[i].nightSteps = int(span / cfg.Step)
+	}
+	for i := range d.net.Nodes {
+		if zi := d.nodeZone[i]; zi >= 0 && d.net.Nodes[i].Kind == network.Junction {
+			d.zones[zi].junctions = append(d.zones[zi].junctions, i)
+		}
+	}
+	stepsPerHour := math.Max(1, float64(time.Hour/cfg.Step))
+	for si, s := range cfg.Sensors {
+		info := sensorInfo{s: s, node: -1, link: -1, zone: -1}
+		if s.Quantity == telemetry.Flow {
+			info.link, _ = d.net.LinkIndex(s.At)
+		} else {
+			info.node, _ = d.net.NodeIndex(s.At)
+			info.zone = d.nodeZone[info.node]
+			info.evidence = (s.Quantity == telemetry.Pressure || s.Quantity == telemetry.Head) && d.net.Nodes[info.node].Kind == network.Junction
+		}
+		// Noise floor of an hourly mean: the instrument's σ over √(readings
+		// per hour), at least 1 cm of water or 0.01 L/s (common practice
+		// for logger resolution, not from a source).
+		sigma := 0.0
+		if s.Accuracy > 0 && s.Unit != "" {
+			if u, err := units.Lookup(s.Quantity, s.Unit); err == nil {
+				sigma = u.ToCanonical(s.Accuracy)
+			}
+		}
+		if n, ok := cfg.Noise[s.ID]; ok && n > sigma {
+			sigma = n
+		}
+		info.floor = math.Max(0.01, sigma/math.Sqrt(stepsPerHour))
+		d.sens = append(d.sens, info)
+		d.bySensor[s.ID] = si
+	}
+	for zi, z := range cfg.Zones {
+		for _, id := range z.Inlets {
+			d.zones[zi].inlets = append(d.zones[zi].inlets, d.meterFor(zi, d.bySensor[id]))
+		}
+		for _, id := range z.Outlets {
+			d.zones[zi].outlets = append(d.zones[zi].outlets, d.meterFor(zi, d.bySensor[id]))
+		}
+	}
+	for si := range d.sens {
+		if d.sens[si].evidence && d.sens[si].zone >= 0 {
+			zi := d.sens[si].zone
+			d.zones[zi].evidence = append(d.zones[zi].evidence, si)
+		}
+	}
+	if err := d.design(); err != nil {
+		return nil, err
+	}
+	d.reset()
+	return d, nil
+}
+
+// meterFor orients a boundary flow meter: flow along its link towards a
+// node of the zone is inflow.
+func (d *Detector) meterFor(zi, si int) meter {
+	l := d.net.Links[d.sens[si].link]
+	if d.nodeZone[l.From] == zi && d.nodeZone[l.To] != zi {
+		return meter{sensor: si, sign: -1}
+	}
+	return meter{sensor: si, sign: 1}
+}
+
+// design derives every test's k and h from the wanted false-alarm rate.
+// Each zone has three kinds of test sharing the rate: the night test (one
+// value a night), the burst test (hourly imbalance) and the residual
+// tests (hourly, two-sided, one pair per logger); each kind is given a
+// third of the budget, the residual pairs split theirs.
+func (d *Detector) design() error {
+	fa := d.cfg.FalseAlarmDays * 3
+	night, err := DesignCUSUM(1, fa) // a 1σ shift of the night mean; nights
+	if err != nil {
+		return err
+	}
+	burst, err := DesignCUSUM(5, fa*24) // a 5σ jump of the hourly imbalance
+	if err != nil {
+		return err
+	}
+	maxLoggers := 1
+	for _, z := range d.zones {
+		maxLoggers = max(maxLoggers, len(z.evidence))
+	}
+	resid, err := DesignCUSUM(2, fa*24*float64(2*maxLoggers))
+	if err != nil {
+		return err
+	}
+	d.designNight, d.designBurst, d.designResid = *night, *burst, *resid
+	return nil
+}
+
+func (d *Detector) reset() {
+	d.st = state{
+		SensorAcc: make([]acc, len(d.sens)),
+		ZoneAcc:   make([]acc, len(d.zones)),
+		ZoneExp:   make([]acc, len(d.zones)),
+		Sensors:   make([]sensorState, len(d.sens)),
+		Zones:     make([]zoneState, len(d.zones)),
+		MeanMult:  make([]float64, len(d.zones)),
+	}
+	for i := range d.st.Sensors {
+		s := &d.st.Sensors[i]
+		s.Base = Baseline{Memory: 14, Floor: d.sens[i].floor}
+		s.Up, s.Down = d.designResid, d.designResid
+		s.Last = math.NaN()
+	}
+	for i := range d.st.Zones {
+		z := &d.st.Zones[i]
+		z.Base = Baseline{Memory: 14, Floor: 0.05}
+		z.Jump = Baseline{Memory: 14, Floor: 0.002}
+		z.Burst, z.Night = d.designBurst, d.designNight
+		d.st.MeanMult[i] = 1
+	}
+}
+
+// Findings returns every finding raised so far, in the order raised.
+func (d *Detector) Findings() []finding.Finding {
+	return append([]finding.Finding(nil), d.st.Findings...)
+}
+
+// State returns the detector's state as JSON, to be saved and given to
+// Restore after a restart.
+func (d *Detector) State() ([]byte, error) {
+	b, err := json.Marshal(&d.st)
+	if err != nil {
+		return nil, fmt.Errorf("detector state: %w", err)
+	}
+	return b, nil
+}
+
+// Restore replaces the detector's state with one saved by State for the
+// same configuration.
+func (d *Detector) Restore(b []byte) error {
+	var st state
+	if err := json.Unmarshal(b, &st); err != nil {
+		return fmt.Errorf("detector state: %w", err)
+	}
+	if len(st.Sensors) != len(d.sens) || len(st.Zones) != len(d.zones) {
+		return errors.New("detector state: saved for another configuration (sensor or zone count differs)")
+	}
+	d.st = st
+	d.prevExp, d.prevMat = nil, nil
+	return nil
+}
+
+// Step processes one snapshot. Its values must be in the order of
+// Config.Sensors (as the aligner produces them).
+func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
+	if len(snap.Values) != len(d.sens) {
+		return nil, fmt.Errorf("detector: snapshot at %s has %d values for %d sensors", snap.Step.Format(time.RFC3339), len(snap.Values), len(d.sens))
+	}
+	t := snap.Step
+	hour := t.Truncate(time.Hour)
+	res := &StepResult{Time: t}
+	if !d.st.Hour.IsZero() && hour.After(d.st.Hour) {
+		res.Findings = append(res.Findings, d.closeHour(d.st.Hour)...)
+	}
+	d.st.Hour = hour
+	res.Findings = append(res.Findings, d.qualityFaults(snap)...)
+
+	// Boundary conditions from telemetry: tank levels, source heads.
+	nn := len(d.net.Nodes)
+	if d.cond.FixedHead == nil {
+		d.cond.FixedHead = make([]float64, nn)
+		d.cond.Demand = make([]float64, nn)
+	}
+	for i := range d.cond.FixedHead {
+		d.cond.FixedHead[i] = math.NaN()
+	}
+	for si, info := range d.sens {
+		a := snap.Values[si]
+		if !usable(a) || d.st.Sensors[si].Excluded || info.node < 0 {
+			continue
+		}
+		n := &d.net.Nodes[info.node]
+		switch {
+		case info.s.Quantity == telemetry.Level && n.Kind == network.Tank:
+			d.cond.FixedHead[info.node] = n.Elevation + a.Value
+		case info.s.Quantity == telemetry.Head && n.IsFixedHead():
+			d.cond.FixedHead[info.node] = a.Value
+		}
+	}
+
+	// Expected-consumption solve: demand from the patterns alone.
+	d.base = demand.Base(d.net, t, d.zoneLoc, d.base)
+	copy(d.cond.Demand, d.base)
+	exp, err := d.solver.Solve(&d.cond, d.prevExp)
+	if err != nil {
+		return nil, fmt.Errorf("detector at %s: expected-consumption solve: %w", t.Format(time.RFC3339), err)
+	}
+	d.prevExp = exp
+	res.Iterations += exp.Iterations
+
+	// Zone balances and the inflow-matched multipliers.
+	mult := make([]float64, len(d.zones))
+	res.Zones = make([]ZoneBalance, len(d.zones))
+	for zi := range d.zones {
+		zb := ZoneBalance{Zone: d.zones[zi].z.ID, Multiplier: 1}
+		inflow, ok := d.zoneInflow(zi, snap)
+		dem, leak := 0.0, 0.0
+		for _, j := range d.zones[zi].junctions {
+			dem += d.base[j]
+			leak += exp.Leak[j]
+		}
+		zb.ExpectedLPS = dem + leak
+		mult[zi] = 1
+		if ok {
+			zb.InflowLPS = inflow
+			zb.Imbalance = inflow - zb.ExpectedLPS
+			if dem > 0 {
+				mult[zi] = math.Min(5, math.Max(0, (inflow-leak)/dem))
+			}
+			d.st.ZoneAcc[zi].Sum += zb.Imbalance
+			d.st.ZoneAcc[zi].N++
+			d.st.ZoneExp[zi].Sum += zb.ExpectedLPS
+			d.st.ZoneExp[zi].N++
+			d.nightStep(zi, t, zb.Imbalance, inflow)
+			d.st.MeanMult[zi] += (mult[zi] - d.st.MeanMult[zi]) / float64(min(d.st.Steps+1, 2016))
+		} else {
+			zb.InflowLPS, zb.Imbalance = math.NaN(), math.NaN()
+		}
+		zb.Multiplier = mult[zi]
+		zs := &d.st.Zones[zi]
+		zb.NightStat, zb.NightThreshold = zs.Night.S, zs.Night.H
+		zb.BurstStat, zb.BurstThreshold = zs.Burst.S, zs.Burst.H
+		res.Zones[zi] = zb
+	}
+	res.Nights, res.Findings = d.closeNights(t, res.Findings)
+
+	// Inflow-matched solve: each zone's demand scaled to its measured inflow.
+	for i := range d.cond.Demand {
+		if zi := d.nodeZone[i]; zi >= 0 {
+			d.cond.Demand[i] = d.base[i] * mult[zi]
+		}
+	}
+	mat, err := d.solver.Solve(&d.cond, d.prevMat)
+	if err != nil {
+		return nil, fmt.Errorf("detector at %s: inflow-matched solve: %w", t.Format(time.RFC3339), err)
+	}
+	d.prevMat = mat
+	res.Iterations += mat.Iterations
+
+	res.Expected = make([]float64, len(d.sens))
+	res.Residual = make([]float64, len(d.sens))
+	for si, info := range d.sens {
+		var e float64
+		switch {
+		case info.link >= 0:
+			e = mat.Flow[info.link]
+		case info.s.Quantity == telemetry.Head:
+			e = mat.Head[info.node]
+		default:
+			e = mat.Pressure[info.node]
+		}
+		res.Expected[si] = e
+		res.Residual[si] = math.NaN()
+		if a := snap.Values[si]; usable(a) {
+			res.Residual[si] = a.Value - e
+			if info.evidence {
+				d.st.SensorAcc[si].Sum += res.Residual[si]
+				d.st.SensorAcc[si].N++
+			}
+		}
+	}
+	d.st.Steps++
+	d.st.Findings = append(d.st.Findings, res.Findings...)
+	return res, nil
+}
+
+func usable(a telemetry.Aggregate) bool {
+	return a.Quality.Usable() && a.Count > 0 && !math.IsNaN(a.Value) && !math.IsInf(a.Value, 0)
+}
+
+func (d *Detector) zoneInflow(zi int, snap telemetry.Snapshot) (float64, bool) {
+	q := 0.0
+	for _, m := range d.zones[zi].inlets {
+		a := snap.Values[m.sensor]
+		if !usable(a) || d.st.Sensors[m.sensor].Excluded {
+			return 0, false
+		}
+		q += m.sign * a.Value
+	}
+	for _, m := range d.zones[zi].outlets {
+		a := snap.Values[m.sensor]
+		if !usable(a) || d.st.Sensors[m.sensor].Excluded {
+			return 0, false
+		}
+		q -= math.Abs(m.sign * a.Value)
+	}
+	return q, true
+}
+
+// localHour is the hour of day of t on the zone's clock.
+func (d *Detector) localHour(zi int, t time.Time) int {
+	loc := time.UTC
+	if zi >= 0 && d.zones[zi].z.Location != nil {
+		loc = d.zones[zi].z.Location
+	}
+	return t.In(loc).Hour()
+}
+
+// inNight reports whether t lies in the zone's night window.
+func (d *Detector) inNight(zi int, t time.Time) (bool, time.Time) {
+	z := d.zones[zi].z
+	loc := time.UTC
+	if z.Location != nil {
+		loc = z.Location
+	}
+	lt := t.In(loc)
+	y, m, dd := lt.Date()
+	mid := time.Date(y, m, dd, 0, 0, 0, 0, loc)
+	off := lt.Sub(mid)
+	if z.NightEnd > z.NightStart {
+		return off >= z.NightStart && off < z.NightEnd, mid.Add(z.NightStart)
+	}
+	if off >= z.NightStart {
+		return true, mid.Add(z.NightStart)
+	}
+	if off < z.NightEnd {
+		return true, mid.Add(-24 * time.Hour).Add(z.NightStart)
+	}
+	return false, time.Time{}
+}
+
+func (d *Detector) nightStep(zi int, t time.Time, imbalance, inflow float64) {
+	in, start := d.inNight(zi, t)
+	zs := &d.st.Zones[zi]
+	if !in {
+		return
+	}
+	if !zs.InNight || !start.Equal(zs.NightStart) {
+		zs.InNight, zs.NightStart = true, start
+		zs.NightSum, zs.NightN, zs.NightMin, zs.NightInSum = 0, 0, math.Inf(1), 0
+	}
+	zs.NightSum += imbalance
+	zs.NightN++
+	zs.NightMin = math.Min(zs.NightMin, inflow)
+	zs.NightInSum += inflow
+}
+
+// closeNights runs the night test for every zone whose window has ended.
+func (d *Detector) closeNights(t time.Time, found []finding.Finding) ([]NightFlow, []finding.Finding) {
+	var out []NightFlow
+	for zi := range d.zones {
+		zs := &d.st.Zones[zi]
+		if !zs.InNight {
+			continue
+		}
+		if in, start := d.inNight(zi, t); in && start.Equal(zs.NightStart) {
+			continue
+		}
+		zs.InNight = false
+		if zs.NightN < max(1, d.zones[zi].nightSteps/2) {
+			continue // too little of the night was measured
+		}
+		x := zs.NightSum / float64(zs.NightN)
+		nf := NightFlow{Zone: d.zones[zi].z.ID, Night: zs.NightStart, MinLPS: zs.NightMin, AllowLPS: d.zones[zi].z.NightUseLPS, Imbalance: x}
+		nf.MeanLPS = zs.NightInSum / float64(zs.NightN)
+		nf.ExcessLPS = nf.MinLPS - nf.AllowLPS
+		adj := x - zs.Offset
+		if len(zs.Nights) >= d.cfg.LearnNights {
+			med, sd := nightBaseline(zs.Nights)
+			// σ of a new night's mean imbalance: the scatter of past quiet
+			// nights widened for a prediction from n of them, s·√(1+1/n)
+			// (the prediction interval of a normal sample, e.g. Hahn &
+			// Meeker 1991), at least 0.05 L/s or 1% of the night flow
+			// (common practice for meter resolution, not from a source).
+			n := float64(len(zs.Nights))
+			sigma := math.Max(sd*math.Sqrt(1+1/n), math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
+			z := (adj - med) / sigma
+			alarm := zs.Night.Update(zs.NightStart, z)
+			if alarm {
+				size := zs.Night.Shift() * sigma
+				f, ok := d.zoneHypothesis(zi, zs.Night.Onset, t, size, fmt.Sprintf("night imbalance %+.2f L/s above the median of the last %d nights (%.1fσ)", size, len(zs.Nights), size/sigma))
+				if ok {
+					found = append(found, f)
+				}
+			}
+			if zs.Night.S < zs.Night.H/2 {
+				zs.Nights = appendCapped(zs.Nights, adj, 28)
+			}
+		} else {
+			zs.Nights = appendCapped(zs.Nights, adj, 28)
+		}
+		nf.Statistic, nf.Threshold, nf.NightsUsed = zs.Night.S, zs.Night.H, len(zs.Nights)
+		out = append(out, nf)
+	}
+	return out, found
+}
+
+func appendCapped(xs []float64, x float64, n int) []float64 {
+	xs = append(xs, x)
+	if len(xs) > n {
+		xs = xs[len(xs)-n:]
+	}
+	return xs
+}
+
+// closeHour finishes the hour starting at h: hourly means into the
+// rings and baselines, then the burst and residual tests. Every series is
+// brought up to date before any hypothesis is weighed, so each sees the
+// same hour of evidence.
+func (d *Detector) closeHour(h time.Time) []finding.Finding {
+	learned := d.st.Steps >= d.cfg.LearnNights*int(24*time.Hour/d.cfg.Step)
+	minPerHour := max(1, int(time.Hour/d.cfg.Step)/2)
+	type alarm struct {
+		zone, sensor int
+		onset        time.Time
+		size, sigma  float64
+	}
+	var alarms []alarm
+	for zi := range d.zones {
+		zs := &d.st.Zones[zi]
+		a := d.st.ZoneAcc[zi]
+		e := d.st.ZoneExp[zi]
+		d.st.ZoneAcc[zi], d.st.ZoneExp[zi] = acc{}, acc{}
+		hr := d.localHour(zi, h)
+		if a.N < minPerHour {
+			zs.Ring.push(h, math.NaN())
+			continue
+		}
+		x := a.Sum / float64(a.N)
+		dev := zs.Base.Deviation(hr, x)
+		// Demand noise is multiplicative: a busy day raises every hour by
+		// the same fraction. The burst test therefore follows the imbalance
+		// as a fraction of expected consumption.
+		scale := math.Max(e.Sum/float64(max(e.N, 1)), 0.1)
+		rel := dev / scale
+		if learned && zs.Base.Learned(hr, d.cfg.LearnNights) && !zs.Base.Relearning() {
+			zs.Ring.push(h, dev)
+			jump := rel - zs.Level
+			if zs.LevelN >= 6 && zs.Jump.NVar >= 24 {
+				sigma := zs.Jump.SigmaAt(hr)
+				if zs.Burst.Update(h, jump/sigma) {
+					alarms = append(alarms, alarm{zone: zi, sensor: -1, onset: zs.Burst.Onset, sigma: sigma * scale, size: zs.Level * scale})
+				}
+			}
+			if zs.Burst.S < zs.Burst.H/2 && zs.LevelN > 0 {
+				zs.Jump.Update(hr, jump)
+			}
+			zs.LevelN++
+			zs.Level += (rel - zs.Level) / float64(min(zs.LevelN, 6))
+		} else {
+			zs.Ring.push(h, math.NaN())
+		}
+		if zs.Burst.S < zs.Burst.H/2 || zs.Base.Relearning() {
+			zs.Base.Update(hr, x)
+		}
+	}
+	for si, info := range d.sens {
+		if !info.evidence {
+			continue
+		}
+		ss := &d.st.Sensors[si]
+		a := d.st.SensorAcc[si]
+		d.st.SensorAcc[si] = acc{}
+		hr := d.localHour(info.zone, h)
+		if a.N < minPerHour {
+			ss.Ring.push(h, math.NaN())
+			continue
+		}
+		x := a.Sum / float64(a.N)
+		dev := ss.Base.Deviation(hr, x)
+		if ss.Excluded {
+			// A faulty logger comes back into the evidence after a day of
+			// hourly residuals within 1.5σ of its old normal.
+			ss.Ring.push(h, math.NaN())
+			if math.Abs(dev) < 1.5*ss.Base.SigmaAt(hr) {
+				ss.Quiet++
+			} else {
+				ss.Quiet = 0
+			}
+			if ss.Quiet >= 24 {
+				ss.Excluded, ss.Quiet, ss.BadSteps, ss.Spikes, ss.Unchanged = false, 0, 0, nil, 0
+				ss.Up.Reset()
+				ss.Down.Reset()
+			}
+			continue
+		}
+		if !learned || !ss.Base.Learned(hr, d.cfg.LearnNights) || ss.Base.Relearning() {
+			ss.Ring.push(h, math.NaN())
+			ss.Base.Update(hr, x)
+			continue
+		}
+		ss.Ring.push(h, dev)
+		z := dev / ss.Base.SigmaAt(hr)
+		up := ss.Up.Update(h, z)
+		down := ss.Down.Update(h, -z)
+		if (up || down) && info.zone >= 0 {
+			onset := ss.Up.Onset
+			if down {
+				onset = ss.Down.Onset
+			}
+			alarms = append(alarms, alarm{zone: info.zone, sensor: si, onset: onset})
+		}
+		if ss.Up.S < ss.Up.H/2 && ss.Down.S < ss.Down.H/2 {
+			ss.Base.Update(hr, x)
+		}
+	}
+	var found []finding.Finding
+	end := h.Add(time.Hour)
+	for _, al := range alarms {
+		if al.sensor < 0 {
+			zs := &d.st.Zones[al.zone]
+			if zs.Burst.S <= zs.Burst.H {
+				continue // already taken by an earlier hypothesis this hour
+			}
+			size, _ := zs.Ring.since(al.onset)
+			size -= al.size
+			why := fmt.Sprintf("zone imbalance jumped %+.2f L/s above its level of the hours before (%.1fσ of the hourly scatter)", size, size/al.sigma)
+			if f, ok := d.zoneHypothesis(al.zone, al.onset, end, size, why); ok {
+				found = append(found, f)
+				zs.Level = 0
+				zs.LevelN = 0
+			}
+			continue
+		}
+		ss := &d.st.Sensors[al.sensor]
+		if ss.Up.S <= ss.Up.H && ss.Down.S <= ss.Down.H {
+			continue
+		}
+		if f, ok := d.residualHypothesis(al.sensor, al.onset, end); ok {
+			found = append(found, f)
+		}
+	}
+	return found
+}
+
+// qualityFaults raises sensor faults that ingest's quality flags and the
+// stuck test show directly: a value that has not moved for three hours,
+// three spikes within a day, or an hour out of range.
+func (d *Detector) qualityFaults(snap telemetry.Snapshot) []finding.Finding {
+	var found []finding.Finding
+	for si := range d.sens {
+		ss := &d.st.Sensors[si]
+		if ss.Excluded {
+			continue
+		}
+		a := snap.Values[si]
+		reason := ""
+		switch a.Quality {
+		case telemetry.Stuck, telemetry.OutOfRange:
+			ss.BadSteps++
+			if time.Duration(ss.BadSteps)*d.cfg.Step >= time.Hour {
+				reason = fmt.Sprintf("flagged %s by ingest for %v", a.Quality, time.Duration(ss.BadSteps)*d.cfg.Step)
+			}
+		case telemetry.Spike:
+			ss.Spikes = append(ss.Spikes, snap.Step)
+			cut := snap.Step.Add(-24 * time.Hour)
+			for len(ss.Spikes) > 0 && ss.Spikes[0].Before(cut) {
+				ss.Spikes = ss.Spikes[1:]
+			}
+			if len(ss.Spikes) >= 3 {
+				reason = fmt.Sprintf("%d spikes within 24 h", len(ss.Spikes))
+			}
+		default:
+			ss.BadSteps = 0
+		}
+		if a.Count > 0 && a.Quality != telemetry.Missing {
+			if a.Min == a.Max && a.Value == ss.Last {
+				ss.Unchanged += snap.Length
+			} else {
+				ss.Unchanged = 0
+			}
+			ss.Last = a.Value
+			if ss.Unchanged >= 3*time.Hour && reason == "" {
+				reason = fmt.Sprintf("value %.4g unchanged for %v", a.Value, ss.Unchanged)
+			}
+		}
+		if reason == "" {
+			continue
+		}
+		found = append(found, d.faultFinding(si, snap.Step.Add(-max(ss.Unchanged, time.Duration(ss.BadSteps)*d.cfg.Step)), snap.Step, reason))
+	}
+	return found
+}
+
+func (d *Detector) faultFinding(si int, onset, now time.Time, why string) finding.Finding {
+	ss := &d.st.Sensors[si]
+	ss.Excluded, ss.Quiet = true, 0
+	zone := ""
+	if zi := d.sens[si].zone; zi >= 0 {
+		zone = d.zones[zi].z.ID
+	} else if d.sens[si].link >= 0 {
+		l := d.net.Links[d.sens[si].link]
+		zone = d.net.Nodes[l.To].Zone
+	}
+	return finding.Finding{
+		Kind: finding.SensorFault, Zone: zone, Onset: onset, Raised: now,
+		Candidates: []finding.Candidate{{ID: d.sens[si].s.ID, Score: 1}},
+		Evidence:   fmt.Sprintf("sensor %s: %s; left out of leak and blockage evidence", d.sens[si].s.ID, why),
+	}
+}

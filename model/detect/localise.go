@@ -1,0 +1,389 @@
+package detect
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+	"time"
+
+	"plumbline/model/finding"
+	"plumbline/model/hydraulic"
+	"plumbline/model/network"
+)
+
+// evidence is the residual picture of one zone over a window: the mean
+// change of each logger's hourly residual since the onset, with its
+// weight (hours / σ²), and the mean change of the zone imbalance.
+type evidence struct {
+	sensors []int     // sensor indices
+	dr      []float64 // mean residual change, m
+	w       []float64 // weight 1/σ² of dr
+	dI      float64   // mean imbalance change, L/s
+	wI      float64   // weight of dI
+	hours   int
+}
+
+func (d *Detector) gather(zi int, onset time.Time) evidence {
+	var ev evidence
+	for _, si := range d.zones[zi].evidence {
+		ss := &d.st.Sensors[si]
+		if ss.Excluded {
+			continue
+		}
+		m, n := ss.Ring.since(onset)
+		if n == 0 {
+			continue
+		}
+		s := ss.Base.Sigma()
+		ev.sensors = append(ev.sensors, si)
+		ev.dr = append(ev.dr, m)
+		ev.w = append(ev.w, float64(n)/(s*s))
+		ev.hours = max(ev.hours, n)
+	}
+	zs := &d.st.Zones[zi]
+	if m, n := zs.Ring.since(onset); n > 0 {
+		s := zs.Base.Sigma()
+		ev.dI, ev.wI = m, float64(n)/(s*s)
+	}
+	return ev
+}
+
+// signatures are the responses of the zone's loggers at the average
+// operating point: per logger k, d pressure / d extra outflow at every
+// node, and d pressure / d ln resistance of every link; ubar[k] is the
+// response to the zone's whole demand growing by 1 L/s in proportion to
+// its base demands (what the inflow-matched solve does with unexplained
+// inflow).
+type signatures struct {
+	sens *hydraulic.Sensitivity
+	ubar []float64
+}
+
+func (d *Detector) signatures(zi int, sensors []int) (*signatures, error) {
+	c := d.cond
+	c.Demand = make([]float64, len(d.net.Nodes))
+	for i := range d.net.Nodes {
+		n := &d.net.Nodes[i]
+		if n.Kind != network.Junction {
+			continue
+		}
+		m := 1.0
+		if z := d.nodeZone[i]; z >= 0 {
+			m = d.st.MeanMult[z]
+		}
+		c.Demand[i] = n.Demand * m
+	}
+	ref, err := d.solver.Solve(&c, d.prevMat)
+	if err != nil {
+		return nil, fmt.Errorf("reference solve: %w", err)
+	}
+	obs := make([]hydraulic.Observation, len(sensors))
+	for k, si := range sensors {
+		obs[k] = hydraulic.Observation{Node: d.sens[si].node, Link: -1}
+	}
+	sens, err := d.solver.Sensitivities(ref, obs)
+	if err != nil {
+		return nil, fmt.Errorf("sensitivities: %w", err)
+	}
+	sg := &signatures{sens: sens, ubar: make([]float64, len(sensors))}
+	total := 0.0
+	for _, j := range d.zones[zi].junctions {
+		total += c.Demand[j]
+	}
+	if total > 0 {
+		for k := range sensors {
+			u := 0.0
+			for _, j := range d.zones[zi].junctions {
+				u += c.Demand[j] / total * sens.Outflow[k][j]
+			}
+			sg.ubar[k] = u
+		}
+	}
+	return sg, nil
+}
+
+// ranked is one hypothesis location with its weighted misfit.
+type ranked struct {
+	idx  int
+	sse  float64
+	size float64
+}
+
+// rank sorts hypotheses by misfit and turns misfits into scores: the
+// likelihood of each relative to the best, exp(−(SSE − SSE_best)/2).
+func rank(rs []ranked, n int) ([]ranked, []float64) {
+	sort.SliceStable(rs, func(a, b int) bool { return rs[a].sse < rs[b].sse })
+	if len(rs) > n {
+		rs = rs[:n]
+	}
+	scores := make([]float64, len(rs))
+	for i, r := range rs {
+		scores[i] = math.Exp(-(r.sse - rs[0].sse) / 2)
+	}
+	return rs, scores
+}
+
+// leakFits scores a leak at every junction of the zone. With fixed >= 0
+// the leak's size is that (the balance measured it); otherwise it is
+// fitted to the residuals, and the balance enters as one more observation.
+func (d *Detector) leakFits(zi int, ev evidence, sg *signatures, fixed float64) []ranked {
+	var out []ranked
+	g := make([]float64, len(ev.sensors))
+	for _, j := range d.zones[zi].junctions {
+		for k := range ev.sensors {
+			g[k] = sg.sens.Outflow[k][j] - sg.ubar[k]
+		}
+		q := fixed
+		if q < 0 {
+			num, den := ev.wI*ev.dI, ev.wI
+			for k := range g {
+				num += ev.w[k] * ev.dr[k] * g[k]
+				den += ev.w[k] * g[k] * g[k]
+			}
+			q = 0
+			if den > 0 {
+				q = math.Max(0, num/den)
+			}
+		}
+		sse := 0.0
+		for k := range g {
+			r := ev.dr[k] - q*g[k]
+			sse += ev.w[k] * r * r
+		}
+		if fixed < 0 {
+			sse += ev.wI * (ev.dI - q) * (ev.dI - q)
+		}
+		out = append(out, ranked{idx: j, sse: sse, size: q})
+	}
+	return out
+}
+
+// blockageFits scores a resistance increase on every pipe and valve that
+// touches the zone; the zone balance should not move.
+func (d *Detector) blockageFits(zi int, ev evidence, sg *signatures) []ranked {
+	var out []ranked
+	for l, lk := range d.net.Links {
+		if lk.Kind == network.Pump || (d.nodeZone[lk.From] != zi && d.nodeZone[lk.To] != zi) {
+			continue
+		}
+		num, den := 0.0, 0.0
+		for k := range ev.sensors {
+			b := sg.sens.Resistance[k][l]
+			num += ev.w[k] * ev.dr[k] * b
+			den += ev.w[k] * b * b
+		}
+		theta := 0.0
+		if den > 0 {
+			theta = math.Max(0, num/den)
+		}
+		sse := ev.wI * ev.dI * ev.dI
+		for k := range ev.sensors {
+			r := ev.dr[k] - theta*sg.sens.Resistance[k][l]
+			sse += ev.w[k] * r * r
+		}
+		out = append(out, ranked{idx: l, sse: sse, size: theta})
+	}
+	return out
+}
+
+// accept resets a zone's tests after a finding and takes the change into
+// the baselines, so that later tests look for what is new.
+func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time) {
+	zs := &d.st.Zones[zi]
+	if leak != 0 {
+		zs.Base.Shift(leak)
+		zs.Offset += leak
+		zs.LeakQuiet = now.Add(24 * time.Hour)
+	}
+	zs.Burst.Reset()
+	zs.Night.Reset()
+	zs.Base.Relearn = 24
+	for _, si := range d.zones[zi].evidence {
+		ss := &d.st.Sensors[si]
+		ss.Base.Relearn = 24
+		ss.Up.Reset()
+		ss.Down.Reset()
+	}
+	zs.ResidQuiet = now.Add(12 * time.Hour)
+}
+
+// zoneHypothesis explains a rise of a zone's imbalance: a leak somewhere
+// in the zone, or an inflow meter reading high. The inflow-matched solve
+// spreads the unexplained water over the zone's demand, so a meter error
+// lowers the modelled pressures by size × ubar everywhere and shows as
+// positive residuals, while a real leak takes the measured pressures down
+// with it near its place and leaves residuals size × (S_j − ubar).
+func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, why string) (finding.Finding, bool) {
+	zs := &d.st.Zones[zi]
+	zone := d.zones[zi].z.ID
+	if now.Before(zs.LeakQuiet) || size <= 0 {
+		zs.Burst.Reset()
+		zs.Night.Reset()
+		return finding.Finding{}, false
+	}
+	onset = d.refineOnset(zi, onset, size)
+	ev := d.gather(zi, onset)
+	f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(size), Candidates: []finding.Candidate{}}
+	if len(ev.sensors) == 0 {
+		f.Evidence = why + "; no pressure loggers in the zone to locate it"
+		d.accept(zi, ev, size, now)
+		return f, true
+	}
+	sg, err := d.signatures(zi, ev.sensors)
+	if err != nil {
+		f.Evidence = why + "; location not computed: " + err.Error()
+		d.accept(zi, ev, size, now)
+		return f, true
+	}
+	leaks := d.leakFits(zi, ev, sg, size)
+	top, scores := rank(leaks, d.cfg.Candidates)
+	meterSSE := 0.0
+	for k := range ev.sensors {
+		r := ev.dr[k] + size*sg.ubar[k]
+		meterSSE += ev.w[k] * r * r
+	}
+	// A meter error must explain the residuals clearly better than the best
+	// leak (by more than the 2 units of SSE one parameter may buy, Akaike
+	// 1974) before the finding blames the instrument.
+	if len(top) > 0 && meterSSE+2 < top[0].sse && len(d.zones[zi].inlets)+len(d.zones[zi].outlets) > 0 {
+		f.Kind = finding.SensorFault
+		f.SizeLPS = 0
+		for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
+			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.sens[m.sensor].s.ID, Score: 1})
+			d.st.Sensors[m.sensor].Excluded = true
+		}
+		f.Evidence = fmt.Sprintf("%s, but pressures did not fall as a leak of that size would: loggers read %s above the model, as a flow meter over-reading would make them; check the zone's flow meters",
+			why, describeResiduals(d, ev, 3))
+		d.accept(zi, ev, 0, now)
+		return f, true
+	}
+	for i, r := range top {
+		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
+	}
+	f.Evidence = fmt.Sprintf("%s since %s; pressure residuals (%s) best match a leak at %s",
+		why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), f.Candidates[0].ID)
+	d.accept(zi, ev, size, now)
+	return f, true
+}
+
+// residualHypothesis explains one logger's residual change when the zone
+// balance has not moved enough to raise a leak by itself: a constriction
+// somewhere (pressure down beyond it, balance unchanged), a leak too small
+// for the balance, or the logger itself.
+func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Finding, bool) {
+	zi := d.sens[si].zone
+	zs := &d.st.Zones[zi]
+	ss := &d.st.Sensors[si]
+	if now.Before(zs.ResidQuiet) {
+		ss.Up.Reset()
+		ss.Down.Reset()
+		return finding.Finding{}, false
+	}
+	ev := d.gather(zi, onset)
+	me := -1
+	for k, s := range ev.sensors {
+		if s == si {
+			me = k
+		}
+	}
+	if me < 0 {
+		return finding.Finding{}, false
+	}
+	zone := d.zones[zi].z.ID
+	faultSSE := ev.wI * ev.dI * ev.dI
+	for k := range ev.sensors {
+		if k != me {
+			faultSSE += ev.w[k] * ev.dr[k] * ev.dr[k]
+		}
+	}
+	var blocks, leaks []ranked
+	if len(ev.sensors) > 1 {
+		sg, err := d.signatures(zi, ev.sensors)
+		if err == nil {
+			blocks = d.blockageFits(zi, ev, sg)
+			leaks = d.leakFits(zi, ev, sg, -1)
+		}
+	}
+	bTop, bScores := rank(blocks, d.cfg.Candidates)
+	lTop, lScores := rank(leaks, d.cfg.Candidates)
+	bestB, bestL := math.Inf(1), math.Inf(1)
+	if len(bTop) > 0 {
+		bestB = bTop[0].sse
+	}
+	if len(lTop) > 0 && lTop[0].size > 0 {
+		bestL = lTop[0].sse
+	}
+	desc := describeResiduals(d, ev, 3)
+	switch {
+	case faultSSE <= bestB && faultSSE <= bestL:
+		f := d.faultFinding(si, onset, now, fmt.Sprintf("residual moved %+.2f m since %s while the other loggers in zone %s stayed within their noise (%s) and the zone balance did not change",
+			ev.dr[me], onset.UTC().Format("2006-01-02 15:04"), zone, desc))
+		ss.Up.Reset()
+		ss.Down.Reset()
+		return f, true
+	case bestB <= bestL:
+		l := bTop[0]
+		f := finding.Finding{Kind: finding.Blockage, Zone: zone, Onset: onset, Raised: now,
+			OpenFrac: round2(math.Exp(-l.size / 2))}
+		for i, r := range bTop {
+			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(bScores[i])})
+		}
+		f.Evidence = fmt.Sprintf("pressures changed (%s) since %s while zone inflow moved only %+.2f L/s; the pattern matches extra head loss on %s (about %.0f%% open)",
+			desc, onset.UTC().Format("2006-01-02 15:04"), ev.dI, f.Candidates[0].ID, 100*f.OpenFrac)
+		d.accept(zi, ev, 0, now)
+		return f, true
+	default:
+		l := lTop[0]
+		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(l.size)}
+		for i, r := range lTop {
+			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(lScores[i])})
+		}
+		f.Evidence = fmt.Sprintf("pressures fell (%s) since %s in the pattern of a leak of about %.2f L/s at %s; zone imbalance %+.2f L/s",
+			desc, onset.UTC().Format("2006-01-02 15:04"), l.size, f.Candidates[0].ID, ev.dI)
+		d.accept(zi, ev, l.size, now)
+		return f, true
+	}
+}
+
+// refineOnset moves a zone change's onset to the hour that best fits a
+// step of the given size in the hourly imbalance (the maximum-likelihood
+// change point of a known mean shift), searching from a day before the
+// test's own onset.
+func (d *Detector) refineOnset(zi int, onset time.Time, size float64) time.Time {
+	r := &d.st.Zones[zi].Ring
+	lo := onset.Add(-24 * time.Hour)
+	best, bestAt, cum := 0.0, onset, 0.0
+	for i := len(r.Vals) - 1; i >= 0; i-- {
+		at := r.End.Add(-time.Duration(len(r.Vals)-1-i) * time.Hour)
+		if at.Before(lo) {
+			break
+		}
+		if math.IsNaN(r.Vals[i]) {
+			continue
+		}
+		cum += r.Vals[i] - size/2
+		if cum > best {
+			best, bestAt = cum, at
+		}
+	}
+	return bestAt
+}
+
+func describeResiduals(d *Detector, ev evidence, n int) string {
+	idx := make([]int, len(ev.sensors))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return math.Abs(ev.dr[idx[a]]) > math.Abs(ev.dr[idx[b]]) })
+	var parts []string
+	for _, k := range idx[:min(n, len(idx))] {
+		parts = append(parts, fmt.Sprintf("%s %+.2f m", d.sens[ev.sensors[k]].s.ID, ev.dr[k]))
+	}
+	if len(parts) == 0 {
+		return "no loggers"
+	}
+	return strings.Join(parts, ", ")
+}
+
+func round2(x float64) float64 { return math.Round(x*100) / 100 }
