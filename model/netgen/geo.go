@@ -28,9 +28,10 @@ const degree = math.Pi / 180
 // projection places local metres on the sphere of radius
 // network.EarthRadius: y along a meridian (1 m = 1/R rad of latitude),
 // x along the parallel of the origin (1 m = 1/(R cos φ0) rad of
-// longitude). Over a town of tens of km the east-west scale then drifts
-// by at most a few tenths of a percent from true; stored lengths are
-// measured on the sphere (sphereLength), so they match the geometry.
+// longitude), rounded to 1e-7° (about 1 cm). Over a town of tens of
+// km the east-west scale then drifts by at most a few tenths of a
+// percent from true; stored lengths are measured on the sphere
+// (sphereLength), so they match the geometry.
 type projection struct {
 	lon0, lat0 float64 // degrees
 	cos0       float64
@@ -42,8 +43,8 @@ func newProjection(origin network.Point) projection {
 
 func (p projection) point(v vec) network.Point {
 	return network.Point{
-		Lon: p.lon0 + v.x/(network.EarthRadius*p.cos0)/degree,
-		Lat: p.lat0 + v.y/network.EarthRadius/degree,
+		Lon: roundTo(p.lon0+v.x/(network.EarthRadius*p.cos0)/degree, 1e-7),
+		Lat: roundTo(p.lat0+v.y/network.EarthRadius/degree, 1e-7),
 	}
 }
 
