@@ -12,18 +12,29 @@ import (
 // 100k junctions.
 var benchSizes = []int{32, 100, 316}
 
-func benchNetwork(k int) pattern { return networkPattern(k, 0.75, 2026) }
+// benchPattern returns the benchmark graph of a kind on a k×k layout:
+// "network" is a street grid with a quarter of the segments missing (average
+// degree ≈ 3.1, like a town's pipe network), "grid+" the full 5-point grid
+// with 5 % diagonals and n/500 long random links, "grid" the plain 5-point
+// grid.
+func benchPattern(kind string, k int) pattern {
+	switch kind {
+	case "network":
+		return networkPattern(k, 0.75, 2026)
+	case "grid+":
+		return networkPattern(k, 1, 2026)
+	}
+	return gridPattern(k, k)
+}
+
+var benchKinds = []string{"network", "grid+", "grid"}
 
 // BenchmarkAnalyze measures ordering plus symbolic factorisation on
-// grid-like pipe networks (networkPattern, fixed seed) and on full 5-point
-// grids.
+// the benchmark graphs (benchPattern, fixed seed).
 func BenchmarkAnalyze(b *testing.B) {
-	for _, kind := range []string{"network", "grid"} {
+	for _, kind := range benchKinds {
 		for _, k := range benchSizes {
-			p := benchNetwork(k)
-			if kind == "grid" {
-				p = gridPattern(k, k)
-			}
+			p := benchPattern(kind, k)
 			for _, o := range []Ordering{MinimumDegree, ReverseCuthillMcKee} {
 				if o == ReverseCuthillMcKee && k > 100 {
 					continue
@@ -49,12 +60,9 @@ func BenchmarkAnalyze(b *testing.B) {
 // BenchmarkFactorizeSolve measures one numeric factorisation and one solve,
 // the work of one Newton iteration of the hydraulic solver.
 func BenchmarkFactorizeSolve(b *testing.B) {
-	for _, kind := range []string{"network", "grid"} {
+	for _, kind := range benchKinds {
 		for _, k := range benchSizes {
-			p := benchNetwork(k)
-			if kind == "grid" {
-				p = gridPattern(k, k)
-			}
+			p := benchPattern(kind, k)
 			b.Run(fmt.Sprintf("%s/n=%d", kind, p.n), func(b *testing.B) {
 				sym, err := Analyze(p.n, p.rows, p.cols, Options{})
 				if err != nil {

@@ -14,21 +14,32 @@ func gemmNT(m, n, k int, a []float64, lda int, b []float64, ldb int, c []float64
 	_ = a[(k-1)*lda+m-1]
 	_ = b[(k-1)*ldb+n-1]
 	_ = c[(n-1)*ldc+m-1]
-	m8, n4 := 0, 0
-	if useVector && k >= 2 {
-		m8, n4 = m&^7, n&^3
-		for j := 0; j < n4; j += 4 {
-			for i := 0; i < m8; i += 8 {
-				kern8x4(k, &a[i], lda, &b[j], ldb, &c[i+j*ldc], ldc)
-			}
+	if !useVector || k < 2 {
+		gemmNTGo(m, n, k, a, lda, b, ldb, c, ldc)
+		return
+	}
+	m8 := m &^ 7
+	m4 := m &^ 3
+	n4 := n &^ 3
+	for j := 0; j < n4; j += 4 {
+		for i := 0; i < m8; i += 8 {
+			kern8x4(k, &a[i], lda, &b[j], ldb, &c[i+j*ldc], ldc)
+		}
+		if m4 > m8 {
+			kern4x4(k, &a[m8], lda, &b[j], ldb, &c[m8+j*ldc], ldc)
 		}
 	}
-	// Rows m8..m-1 of the first n4 columns, then columns n4..n-1 whole.
-	if m8 < m {
-		gemmNTGo(m-m8, n4, k, a[m8:], lda, b, ldb, c[m8:], ldc)
+	for j := n4; j < n; j++ {
+		for i := 0; i < m8; i += 8 {
+			kern8x1(k, &a[i], lda, &b[j], ldb, &c[i+j*ldc])
+		}
+		if m4 > m8 {
+			kern4x1(k, &a[m8], lda, &b[j], ldb, &c[m8+j*ldc])
+		}
 	}
-	if n4 < n {
-		gemmNTGo(m, n-n4, k, a, lda, b[n4:], ldb, c[n4*ldc:], ldc)
+	// The last m-m4 (< 4) rows of every column.
+	if m4 < m {
+		gemmNTGo(m-m4, n, k, a[m4:], lda, b, ldb, c[m4:], ldc)
 	}
 }
 

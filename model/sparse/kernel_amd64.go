@@ -12,3 +12,19 @@ var useVector = cpu.X86.HasAVX2 && cpu.X86.HasFMA
 //
 //go:noescape
 func kern8x4(k int, a *float64, lda int, b *float64, ldb int, c *float64, ldc int)
+
+// kern4x4 is kern8x4 for a 4×4 tile.
+//
+//go:noescape
+func kern4x4(k int, a *float64, lda int, b *float64, ldb int, c *float64, ldc int)
+
+// kern8x1 computes c[0:8] -= A b for the 8×k block A (leading dimension lda)
+// and the vector b of stride ldb.
+//
+//go:noescape
+func kern8x1(k int, a *float64, lda int, b *float64, ldb int, c *float64)
+
+// kern4x1 is kern8x1 for 4 rows.
+//
+//go:noescape
+func kern4x1(k int, a *float64, lda int, b *float64, ldb int, c *float64)

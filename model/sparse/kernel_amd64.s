@@ -74,3 +74,162 @@ store:
 	VMOVUPD Y1, 32(DX)
 	VZEROUPPER
 	RET
+
+// func kern4x4(k int, a *float64, lda int, b *float64, ldb int, c *float64, ldc int)
+// C[0:4, 0:4] -= A[0:4, 0:k] * B[0:4, 0:k]ᵀ.
+TEXT ·kern4x4(SB), NOSPLIT, $0-56
+	MOVQ k+0(FP), CX
+	MOVQ a+8(FP), SI
+	MOVQ lda+16(FP), R8
+	SHLQ $3, R8
+	MOVQ b+24(FP), DI
+	MOVQ ldb+32(FP), R9
+	SHLQ $3, R9
+	MOVQ c+40(FP), DX
+	MOVQ ldc+48(FP), R10
+	SHLQ $3, R10
+	VXORPD Y4, Y4, Y4
+	VXORPD Y5, Y5, Y5
+	VXORPD Y6, Y6, Y6
+	VXORPD Y7, Y7, Y7
+	TESTQ CX, CX
+	JEQ store4
+
+loop4:
+	VMOVUPD (SI), Y0
+	VBROADCASTSD (DI), Y1
+	VBROADCASTSD 8(DI), Y2
+	VBROADCASTSD 16(DI), Y3
+	VBROADCASTSD 24(DI), Y8
+	VFMADD231PD Y0, Y1, Y4
+	VFMADD231PD Y0, Y2, Y5
+	VFMADD231PD Y0, Y3, Y6
+	VFMADD231PD Y0, Y8, Y7
+	ADDQ R8, SI
+	ADDQ R9, DI
+	DECQ CX
+	JNZ loop4
+
+store4:
+	VMOVUPD (DX), Y0
+	VSUBPD Y4, Y0, Y0
+	VMOVUPD Y0, (DX)
+	ADDQ R10, DX
+	VMOVUPD (DX), Y0
+	VSUBPD Y5, Y0, Y0
+	VMOVUPD Y0, (DX)
+	ADDQ R10, DX
+	VMOVUPD (DX), Y0
+	VSUBPD Y6, Y0, Y0
+	VMOVUPD Y0, (DX)
+	ADDQ R10, DX
+	VMOVUPD (DX), Y0
+	VSUBPD Y7, Y0, Y0
+	VMOVUPD Y0, (DX)
+	VZEROUPPER
+	RET
+
+// func kern8x1(k int, a *float64, lda int, b *float64, ldb int, c *float64)
+// c[0:8] -= A[0:8, 0:k] * b[0:k] with b strided by ldb; two independent
+// accumulator pairs (even and odd t) hide the FMA latency.
+TEXT ·kern8x1(SB), NOSPLIT, $0-48
+	MOVQ k+0(FP), CX
+	MOVQ a+8(FP), SI
+	MOVQ lda+16(FP), R8
+	SHLQ $3, R8
+	MOVQ b+24(FP), DI
+	MOVQ ldb+32(FP), R9
+	SHLQ $3, R9
+	MOVQ c+40(FP), DX
+	VXORPD Y4, Y4, Y4
+	VXORPD Y5, Y5, Y5
+	VXORPD Y6, Y6, Y6
+	VXORPD Y7, Y7, Y7
+	MOVQ CX, BX
+	SHRQ $1, BX
+	JEQ tail81
+
+loop81:
+	VMOVUPD (SI), Y0
+	VMOVUPD 32(SI), Y1
+	VBROADCASTSD (DI), Y2
+	VFMADD231PD Y0, Y2, Y4
+	VFMADD231PD Y1, Y2, Y5
+	ADDQ R8, SI
+	ADDQ R9, DI
+	VMOVUPD (SI), Y0
+	VMOVUPD 32(SI), Y1
+	VBROADCASTSD (DI), Y3
+	VFMADD231PD Y0, Y3, Y6
+	VFMADD231PD Y1, Y3, Y7
+	ADDQ R8, SI
+	ADDQ R9, DI
+	DECQ BX
+	JNZ loop81
+
+tail81:
+	ANDQ $1, CX
+	JEQ store81
+	VMOVUPD (SI), Y0
+	VMOVUPD 32(SI), Y1
+	VBROADCASTSD (DI), Y2
+	VFMADD231PD Y0, Y2, Y4
+	VFMADD231PD Y1, Y2, Y5
+
+store81:
+	VADDPD Y6, Y4, Y4
+	VADDPD Y7, Y5, Y5
+	VMOVUPD (DX), Y0
+	VMOVUPD 32(DX), Y1
+	VSUBPD Y4, Y0, Y0
+	VSUBPD Y5, Y1, Y1
+	VMOVUPD Y0, (DX)
+	VMOVUPD Y1, 32(DX)
+	VZEROUPPER
+	RET
+
+// func kern4x1(k int, a *float64, lda int, b *float64, ldb int, c *float64)
+// c[0:4] -= A[0:4, 0:k] * b[0:k] with b strided by ldb.
+TEXT ·kern4x1(SB), NOSPLIT, $0-48
+	MOVQ k+0(FP), CX
+	MOVQ a+8(FP), SI
+	MOVQ lda+16(FP), R8
+	SHLQ $3, R8
+	MOVQ b+24(FP), DI
+	MOVQ ldb+32(FP), R9
+	SHLQ $3, R9
+	MOVQ c+40(FP), DX
+	VXORPD Y4, Y4, Y4
+	VXORPD Y6, Y6, Y6
+	MOVQ CX, BX
+	SHRQ $1, BX
+	JEQ tail41
+
+loop41:
+	VMOVUPD (SI), Y0
+	VBROADCASTSD (DI), Y2
+	VFMADD231PD Y0, Y2, Y4
+	ADDQ R8, SI
+	ADDQ R9, DI
+	VMOVUPD (SI), Y1
+	VBROADCASTSD (DI), Y3
+	VFMADD231PD Y1, Y3, Y6
+	ADDQ R8, SI
+	ADDQ R9, DI
+	DECQ BX
+	JNZ loop41
+
+tail41:
+	ANDQ $1, CX
+	JEQ store41
+	VMOVUPD (SI), Y0
+	VBROADCASTSD (DI), Y2
+	VFMADD231PD Y0, Y2, Y4
+
+store41:
+	VADDPD Y6, Y4, Y4
+	VMOVUPD (DX), Y0
+	VSUBPD Y4, Y0, Y0
+	VMOVUPD Y0, (DX)
+	VZEROUPPER
+	RET

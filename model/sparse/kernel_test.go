@@ -9,9 +9,21 @@ import (
 // TestGemmNT checks the dense kernel (vector tiles and plain edges) against
 // the defining triple loop C -= A Bᵀ on random blocks of many shapes.
 func TestGemmNT(t *testing.T) {
+	vec := useVector
+	defer func() { useVector = vec }()
+	for _, v := range []bool{vec, false} {
+		useVector = v
+		checkGemmNT(t)
+	}
+}
+
+func checkGemmNT(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 1))
 	for trial := 0; trial < 300; trial++ {
 		m, n, k := 1+rng.IntN(21), 1+rng.IntN(11), rng.IntN(13)
+		if trial%10 == 0 {
+			m, n, k = 8*(1+rng.IntN(4)), 4*(1+rng.IntN(3)), 2+rng.IntN(40)
+		}
 		lda, ldb, ldc := m+rng.IntN(3), n+rng.IntN(4), m+rng.IntN(2)
 		a := make([]float64, lda*max(k, 1))
 		b := make([]float64, ldb*max(k, 1))

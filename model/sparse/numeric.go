@@ -153,6 +153,9 @@ func factorPanel(L []float64, r, k int) int {
 	for t0 := 0; t0 < k; t0 += panelBlock {
 		t1 := min(t0+panelBlock, k)
 		for t := t0; t < t1; t++ {
+			// Left-looking inside the block: column t receives the
+			// block columns t0..t-1, then is scaled by its pivot.
+			gemmNT(r-t, 1, t-t0, L[t0*r+t:], r, L[t0*r+t:], r, L[t*r+t:], r)
 			ct := L[t*r : (t+1)*r]
 			d := ct[t]
 			if !(d > 0) || math.IsInf(d, 1) {
@@ -164,18 +167,6 @@ func factorPanel(L []float64, r, k int) int {
 			below := ct[t+1:]
 			for i := range below {
 				below[i] *= inv
-			}
-			for t2 := t + 1; t2 < t1; t2++ {
-				a := ct[t2]
-				if a == 0 {
-					continue
-				}
-				c2 := L[t2*r+t2 : (t2+1)*r]
-				src := ct[t2:r]
-				src = src[:len(c2)]
-				for i := range c2 {
-					c2[i] -= a * src[i]
-				}
 			}
 		}
 		for j0 := t1; j0 < k; j0 += 4 {

@@ -71,7 +71,18 @@ func norm(v []float64) float64 {
 // TestAgainstDenseCholesky compares the solution with gonum's dense
 // Cholesky (gonum.org/v1/gonum/mat.Cholesky, an independent solver) and
 // checks the residual ‖Ax−b‖/‖b‖, which needs no reference.
+// It runs with the vector tile kernels (where the processor has them) and
+// with the plain Go kernels.
 func TestAgainstDenseCholesky(t *testing.T) {
+	vec := useVector
+	defer func() { useVector = vec }()
+	for _, v := range []bool{vec, false} {
+		useVector = v
+		checkAgainstDense(t)
+	}
+}
+
+func checkAgainstDense(t *testing.T) {
 	for _, p := range testPatterns() {
 		for _, o := range allOrderings {
 			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o})

@@ -178,8 +178,8 @@ func columnCounts(n int, pptr, padj, parent []int) []int {
 // values of common practice chosen by measurement (see the benchmarks), not
 // from a source.
 var (
-	relaxCols  = [...]int{4, 16, 48, 1 << 30}
-	relaxZeros = [...]float64{0.8, 0.3, 0.1, 0.04}
+	relaxCols  = [4]int{4, 16, 48, 1 << 30}
+	relaxZeros = [4]float64{0.8, 0.3, 0.1, 0.04}
 )
 
 // amalgamate finds the fundamental supernodes of the postordered elimination
