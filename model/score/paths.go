@@ -1,7 +1,6 @@
 package score
 
 import (
-	"container/heap"
 	"math"
 
 	"plumbline/model/network"
@@ -90,32 +89,36 @@ func (p *Paths) Distance(a, b string) (float64, bool) {
 	if ea == eb {
 		return 0, true
 	}
-	dist := p.from(ea)
-	var d float64
+	var targets [2]int
+	var half float64
 	if eb.link < 0 {
-		d = dist[eb.node]
+		targets = [2]int{eb.node, eb.node}
 	} else {
 		l := &p.net.Links[eb.link]
-		d = math.Min(dist[l.From], dist[l.To]) + linkLength(l)/2
+		targets = [2]int{l.From, l.To}
+		half = linkLength(l) / 2
 	}
+	d := p.search(ea, targets)
 	if math.IsInf(d, 1) {
 		return 0, false
 	}
-	return d, true
+	return d + half, true
 }
 
-// from returns the distance of every node from element e (Dijkstra 1959,
-// with a binary heap; +Inf for unreachable nodes).
-func (p *Paths) from(e element) []float64 {
+// search returns the distance from element e to the nearer of the two
+// target nodes (Dijkstra 1959 with a binary heap, stopping at the first
+// target settled: no node settled later can be nearer); +Inf when neither
+// can be reached.
+func (p *Paths) search(e element, targets [2]int) float64 {
 	dist := make([]float64, len(p.net.Nodes))
 	for i := range dist {
 		dist[i] = math.Inf(1)
 	}
-	q := &queue{}
+	var q queue
 	push := func(n int, d float64) {
 		if d < dist[n] {
 			dist[n] = d
-			heap.Push(q, item{n, d})
+			q.push(item{n, d})
 		}
 	}
 	if e.link < 0 {
@@ -126,16 +129,19 @@ func (p *Paths) from(e element) []float64 {
 		push(l.From, half)
 		push(l.To, half)
 	}
-	for q.Len() > 0 {
-		it := heap.Pop(q).(item)
+	for len(q) > 0 {
+		it := q.pop()
 		if it.d > dist[it.n] {
 			continue // a stale entry
+		}
+		if it.n == targets[0] || it.n == targets[1] {
+			return it.d
 		}
 		for _, a := range p.adj[it.n] {
 			push(a.to, it.d+a.w)
 		}
 	}
-	return dist
+	return math.Inf(1)
 }
 
 // item is a node and its tentative distance in the queue.
@@ -144,18 +150,46 @@ type item struct {
 	d float64
 }
 
-// queue is a min-heap of items by distance.
+// queue is a binary min-heap of items by distance.
 type queue []item
 
-func (q queue) Len() int           { return len(q) }
-func (q queue) Less(i, j int) bool { return q[i].d < q[j].d }
-func (q queue) Swap(i, j int)      { q[i], q[j] = q[j], q[i] }
-func (q *queue) Push(x any)        { *q = append(*q, x.(item)) }
-func (q *queue) Pop() any {
-	old := *q
-	it := old[len(old)-1]
-	*q = old[:len(old)-1]
-	return it
+func (q *queue) push(it item) {
+	h := append(*q, it)
+	i := len(h) - 1
+	for i > 0 {
+		parent := (i - 1) / 2
+		if h[parent].d <= h[i].d {
+			break
+		}
+		h[parent], h[i] = h[i], h[parent]
+		i = parent
+	}
+	*q = h
+}
+
+func (q *queue) pop() item {
+	h := *q
+	top := h[0]
+	last := len(h) - 1
+	h[0] = h[last]
+	h = h[:last]
+	i := 0
+	for {
+		l, r, m := 2*i+1, 2*i+2, i
+		if l < len(h) && h[l].d < h[m].d {
+			m = l
+		}
+		if r < len(h) && h[r].d < h[m].d {
+			m = r
+		}
+		if m == i {
+			break
+		}
+		h[i], h[m] = h[m], h[i]
+		i = m
+	}
+	*q = h
+	return top
 }
 
 // elementZone returns the zone of the node or link named id: a node's

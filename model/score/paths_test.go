@@ -5,10 +5,12 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+	"time"
 
 	"gonum.org/v1/gonum/graph/path"
 	"gonum.org/v1/gonum/graph/simple"
 
+	"plumbline/model/finding"
 	"plumbline/model/network"
 )
 
@@ -168,6 +170,29 @@ func BenchmarkDistance(b *testing.B) {
 	for i := 0; i < b.N; i++ {
 		if _, ok := p.Distance("N0", fmt.Sprintf("N%d", 4999-i%100)); !ok {
 			b.Fatal("unreachable")
+		}
+	}
+}
+
+// BenchmarkScore scores 200 events against 1000 findings on a 5000-node
+// random network (one Dijkstra per detected leak or blockage).
+func BenchmarkScore(b *testing.B) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	net := randomNetwork(rng, 5000, 2500)
+	var truth []finding.Event
+	var findings []finding.Finding
+	for i := 0; i < 200; i++ {
+		truth = append(truth, finding.Event{Kind: finding.Leak, At: fmt.Sprintf("N%d", rng.IntN(5000)), Start: t0.Add(time.Duration(i) * time.Hour), SizeLPS: 1})
+	}
+	for j := 0; j < 1000; j++ {
+		findings = append(findings, finding.Finding{Kind: finding.Leak, Raised: t0.Add(time.Duration(j) * 12 * time.Minute),
+			Candidates: cands(fmt.Sprintf("N%d", rng.IntN(5000)), fmt.Sprintf("N%d", rng.IntN(5000)))})
+	}
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		r := Score(truth, findings, net, Options{})
+		if r.Overall.Detected == 0 {
+			b.Fatal("nothing detected")
 		}
 	}
 }
