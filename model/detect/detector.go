@@ -1,7 +1,8 @@
 package detect
 
 import (
-	"encoding/json"
+	"bytes"
+	"encoding/gob"
 	"errors"
 	"fmt"
 	"math"
@@ -60,8 +61,9 @@ type zoneInfo struct {
 	inlets     []meter
 	outlets    []meter
 	junctions  []int
-	evidence   []int // sensor indices of the zone's pressure/head sensors
-	nightSteps int   // steps in one night window
+	evidence   []int   // sensor indices of the zone's pressure/head sensors
+	nightSteps int     // steps in one night window
+	nominal    float64 // sum of the zone's base demands, L/s
 }
 
 type meter struct {
@@ -76,6 +78,7 @@ type state struct {
 	SensorAcc []acc
 	ZoneAcc   []acc
 	ZoneExp   []acc
+	ZoneScale []acc
 	Sensors   []sensorState
 	Zones     []zoneState
 	Findings  []finding.Finding
@@ -123,9 +126,16 @@ type zoneState struct {
 	InNight      bool
 	NightStart   time.Time
 	Offset       float64 // shift accepted into the night baseline by earlier findings
+	// Rebase makes the next night set Offset from what it measures: the
+	// night after a finding shows the new normal (a leak's night size
+	// differs from its day size under FAVAD).
+	Rebase       bool
 	LeakQuiet    time.Time
 	ResidQuiet   time.Time
 	NightLearned int
+	// Scale is the hourly mean of the zone's inflow-matched demand over
+	// its base demand: the operating point of each hour of evidence.
+	Scale ring
 }
 
 // ring is a fixed-length hourly series: Vals[i] belongs to hour
@@ -240,6 +250,7 @@ func New(cfg Config) (*Detector, error) {
 	for i := range d.net.Nodes {
 		if zi := d.nodeZone[i]; zi >= 0 && d.net.Nodes[i].Kind == network.Junction {
 			d.zones[zi].junctions = append(d.zones[zi].junctions, i)
+			d.zones[zi].nominal += d.net.Nodes[i].Demand
 		}
 	}
 	stepsPerHour := math.Max(1, float64(time.Hour/cfg.Step))
@@ -331,6 +342,7 @@ func (d *Detector) reset() {
 		SensorAcc: make([]acc, len(d.sens)),
 		ZoneAcc:   make([]acc, len(d.zones)),
 		ZoneExp:   make([]acc, len(d.zones)),
+		ZoneScale: make([]acc, len(d.zones)),
 		Sensors:   make([]sensorState, len(d.sens)),
 		Zones:     make([]zoneState, len(d.zones)),
 		MeanMult:  make([]float64, len(d.zones)),
@@ -355,21 +367,22 @@ func (d *Detector) Findings() []finding.Finding {
 	return append([]finding.Finding(nil), d.st.Findings...)
 }
 
-// State returns the detector's state as JSON, to be saved and given to
-// Restore after a restart.
+// State returns the detector's state (gob-encoded: it holds NaN for
+// missing hours, which JSON cannot), to be saved and given to Restore
+// after a restart.
 func (d *Detector) State() ([]byte, error) {
-	b, err := json.Marshal(&d.st)
-	if err != nil {
+	var buf bytes.Buffer
+	if err := gob.NewEncoder(&buf).Encode(&d.st); err != nil {
 		return nil, fmt.Errorf("detector state: %w", err)
 	}
-	return b, nil
+	return buf.Bytes(), nil
 }
 
 // Restore replaces the detector's state with one saved by State for the
 // same configuration.
 func (d *Detector) Restore(b []byte) error {
 	var st state
-	if err := json.Unmarshal(b, &st); err != nil {
+	if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&st); err != nil {
 		return fmt.Errorf("detector state: %w", err)
 	}
 	if len(st.Sensors) != len(d.sens) || len(st.Zones) != len(d.zones) {
@@ -451,6 +464,10 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 			d.st.ZoneAcc[zi].N++
 			d.st.ZoneExp[zi].Sum += zb.ExpectedLPS
 			d.st.ZoneExp[zi].N++
+			if nom := d.zones[zi].nominal; nom > 0 {
+				d.st.ZoneScale[zi].Sum += dem * mult[zi] / nom
+				d.st.ZoneScale[zi].N++
+			}
 			d.nightStep(zi, t, zb.Imbalance, inflow)
 			d.st.MeanMult[zi] += (mult[zi] - d.st.MeanMult[zi]) / float64(min(d.st.Steps+1, 2016))
 		} else {
@@ -595,6 +612,14 @@ func (d *Detector) closeNights(t time.Time, found []finding.Finding) ([]NightFlo
 		nf.MeanLPS = zs.NightInSum / float64(zs.NightN)
 		nf.ExcessLPS = nf.MinLPS - nf.AllowLPS
 		adj := x - zs.Offset
+		if zs.Rebase && len(zs.Nights) > 0 {
+			med, _ := nightBaseline(zs.Nights)
+			zs.Offset, zs.Rebase = x-med, false
+			nf.Statistic, nf.Threshold, nf.NightsUsed = zs.Night.S, zs.Night.H, len(zs.Nights)
+			out = append(out, nf)
+			continue
+		}
+		zs.Rebase = false
 		if len(zs.Nights) >= d.cfg.LearnNights {
 			med, sd := nightBaseline(zs.Nights)
 			// σ of a new night's mean imbalance: the scatter of past quiet
@@ -650,7 +675,12 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 		zs := &d.st.Zones[zi]
 		a := d.st.ZoneAcc[zi]
 		e := d.st.ZoneExp[zi]
-		d.st.ZoneAcc[zi], d.st.ZoneExp[zi] = acc{}, acc{}
+		if sc := d.st.ZoneScale[zi]; sc.N > 0 {
+			zs.Scale.push(h, sc.Sum/float64(sc.N))
+		} else {
+			zs.Scale.push(h, math.NaN())
+		}
+		d.st.ZoneAcc[zi], d.st.ZoneExp[zi], d.st.ZoneScale[zi] = acc{}, acc{}, acc{}
 		hr := d.localHour(zi, h)
 		if a.N < minPerHour {
 			zs.Ring.push(h, math.NaN())

@@ -166,3 +166,96 @@ func TestQuietPeriodHasNoFindings(t *testing.T) {
 		t.Errorf("false finding in a quiet month: %+v", f)
 	}
 }
+
+// A half-shut valve on the trunk main along the top row: pressures
+// beyond it fall by day, the zone's inflow does not change.
+func TestBlockageFoundAndToldFromLeak(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(9*24*time.Hour + 8*time.Hour)
+	snaps := simulate(t, net, 12, 3, []sim.Event{{Kind: finding.Blockage, At: "P-J-00-s", Start: start, OpenFraction: 0.15}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	if len(fs) == 0 {
+		t.Fatal("no finding for a trunk main 15% open")
+	}
+	f := fs[0]
+	t.Logf("finding: %+v", f)
+	if f.Kind != finding.Blockage || f.Raised.Before(start) {
+		t.Fatalf("first finding %+v, want a blockage after %s", f, start)
+	}
+	found := false
+	for _, c := range f.Candidates {
+		found = found || c.ID == "P-J-00-s"
+	}
+	if !found {
+		t.Errorf("P-J-00-s not among the candidates %+v", f.Candidates)
+	}
+	for _, g := range fs[1:] {
+		if g.Kind != finding.Blockage {
+			t.Errorf("a blockage also raised %+v", g)
+		}
+	}
+}
+
+// An offset on one logger moves its residual alone: a sensor fault, and
+// no leak or blockage.
+func TestSensorOffsetIsASensorFault(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(9*24*time.Hour + 3*time.Hour)
+	snaps := simulate(t, net, 12, 4, []sim.Event{{Kind: finding.SensorFault, At: "P-33", Start: start, Mode: "offset", Amount: 0.4}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	if len(fs) == 0 {
+		t.Fatal("no finding for a 0.4 m offset")
+	}
+	for _, f := range fs {
+		if f.Kind != finding.SensorFault {
+			t.Errorf("sensor offset raised %+v", f)
+		}
+	}
+	if fs[0].Candidates[0].ID != "P-33" || fs[0].Raised.Before(start) {
+		t.Errorf("finding %+v, want P-33 after %s", fs[0], start)
+	}
+	t.Logf("finding: %+v", fs[0])
+}
+
+// Saving the state half way and restoring it into a new detector gives
+// the same findings as one uninterrupted run.
+func TestRestartGivesSameFindings(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(8*24*time.Hour + 22*time.Hour)
+	snaps := simulate(t, net, 11, 5, []sim.Event{{Kind: finding.Leak, At: "J-24", Start: start, SizeLPS: 1.5}})
+	cfg := gridConfig(net)
+	one, _ := New(cfg)
+	want := detectAll(t, one, snaps)
+	if len(want) == 0 {
+		t.Fatal("no finding to compare")
+	}
+	cut := int(start.Sub(t0)/(5*time.Minute)) + 7 // in the middle of the evidence
+	a, _ := New(cfg)
+	got := detectAll(t, a, snaps[:cut])
+	state, err := a.State()
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, _ := New(cfg)
+	if err := b.Restore(state); err != nil {
+		t.Fatal(err)
+	}
+	got = append(got, detectAll(t, b, snaps[cut:])...)
+	if len(got) != len(want) {
+		t.Fatalf("restarted run raised %d findings, uninterrupted %d", len(got), len(want))
+	}
+	for i := range want {
+		if got[i].Kind != want[i].Kind || !got[i].Raised.Equal(want[i].Raised) || got[i].Candidates[0].ID != want[i].Candidates[0].ID ||
+			math.Abs(got[i].SizeLPS-want[i].SizeLPS) > 0.011 {
+			t.Errorf("finding %d: restarted %+v, uninterrupted %+v", i, got[i], want[i])
+		}
+	}
+}

@@ -14,8 +14,11 @@ import (
 
 // evidence is the residual picture of one zone over a window: the mean
 // change of each logger's hourly residual since the onset, with its
-// weight (hours / σ²), and the mean change of the zone imbalance.
+// weight (hours / σ²), the mean change of the zone imbalance, and the
+// zone's mean demand scale over the window (its operating point).
 type evidence struct {
+	zone    int
+	scale   float64
 	sensors []int     // sensor indices
 	dr      []float64 // mean residual change, m
 	w       []float64 // weight 1/σ² of dr
@@ -25,7 +28,10 @@ type evidence struct {
 }
 
 func (d *Detector) gather(zi int, onset time.Time) evidence {
-	var ev evidence
+	ev := evidence{zone: zi, scale: d.st.MeanMult[zi]}
+	if m, n := d.st.Zones[zi].Scale.since(onset); n > 0 {
+		ev.scale = m
+	}
 	for _, si := range d.zones[zi].evidence {
 		ss := &d.st.Sensors[si]
 		if ss.Excluded {
@@ -60,7 +66,11 @@ type signatures struct {
 	ubar []float64
 }
 
-func (d *Detector) signatures(zi int, sensors []int) (*signatures, error) {
+// refConditions are the boundary conditions of the operating point of
+// the evidence: base demands times the evidence zone's mean demand scale
+// over its window and the other zones' mean multipliers, with this
+// step's fixed heads.
+func (d *Detector) refConditions(ev evidence) hydraulic.Conditions {
 	c := d.cond
 	c.Demand = make([]float64, len(d.net.Nodes))
 	for i := range d.net.Nodes {
@@ -69,11 +79,66 @@ func (d *Detector) signatures(zi int, sensors []int) (*signatures, error) {
 			continue
 		}
 		m := 1.0
-		if z := d.nodeZone[i]; z >= 0 {
+		if z := d.nodeZone[i]; z == ev.zone {
+			m = ev.scale
+		} else if z >= 0 {
 			m = d.st.MeanMult[z]
 		}
 		c.Demand[i] = n.Demand * m
 	}
+	return c
+}
+
+// fitOpenFraction finds the open fraction of link l whose full
+// (non-linear) solve at the average operating point best reproduces the
+// residual changes: the linear signature ranks candidates, but a valve
+// 10% open is far outside the range where it gives the size. Golden-
+// section search over f in (0.01, 1) (Kiefer 1953).
+func (d *Detector) fitOpenFraction(l int, ev evidence) float64 {
+	c := d.refConditions(ev)
+	base, err := d.solver.Solve(&c, d.prevMat)
+	if err != nil {
+		return math.NaN()
+	}
+	c.ResistanceFactor = make([]float64, len(d.net.Links))
+	for i := range c.ResistanceFactor {
+		c.ResistanceFactor[i] = 1
+	}
+	sse := func(f float64) float64 {
+		c.ResistanceFactor[l] = 1 / (f * f)
+		sol, err := d.solver.Solve(&c, base)
+		if err != nil {
+			return math.Inf(1)
+		}
+		e := 0.0
+		for k, si := range ev.sensors {
+			n := d.sens[si].node
+			r := ev.dr[k] - (sol.Head[n] - base.Head[n])
+			e += ev.w[k] * r * r
+		}
+		return e
+	}
+	lo, hi := 0.01, 1.0
+	g := (math.Sqrt(5) - 1) / 2
+	a, b := hi-g*(hi-lo), lo+g*(hi-lo)
+	fa, fb := sse(a), sse(b)
+	for i := 0; i < 25; i++ {
+		if fa < fb {
+			hi, b, fb = b, a, fa
+			a = hi - g*(hi-lo)
+			fa = sse(a)
+		} else {
+			lo, a, fa = a, b, fb
+			b = lo + g*(hi-lo)
+			fb = sse(b)
+		}
+	}
+	return (lo + hi) / 2
+}
+
+func (d *Detector) signatures(ev evidence) (*signatures, error) {
+	zi, sensors := ev.zone, ev.sensors
+	c := d.refConditions(ev)
 	ref, err := d.solver.Solve(&c, d.prevMat)
 	if err != nil {
 		return nil, fmt.Errorf("reference solve: %w", err)
@@ -194,6 +259,7 @@ func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time) {
 	if leak != 0 {
 		zs.Base.Shift(leak)
 		zs.Offset += leak
+		zs.Rebase = true
 		zs.LeakQuiet = now.Add(24 * time.Hour)
 	}
 	zs.Burst.Reset()
@@ -230,7 +296,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.accept(zi, ev, size, now)
 		return f, true
 	}
-	sg, err := d.signatures(zi, ev.sensors)
+	sg, err := d.signatures(ev)
 	if err != nil {
 		f.Evidence = why + "; location not computed: " + err.Error()
 		d.accept(zi, ev, size, now)
@@ -299,7 +365,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 	}
 	var blocks, leaks []ranked
 	if len(ev.sensors) > 1 {
-		sg, err := d.signatures(zi, ev.sensors)
+		sg, err := d.signatures(ev)
 		if err == nil {
 			blocks = d.blockageFits(zi, ev, sg)
 			leaks = d.leakFits(zi, ev, sg, -1)
@@ -325,7 +391,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 	case bestB <= bestL:
 		l := bTop[0]
 		f := finding.Finding{Kind: finding.Blockage, Zone: zone, Onset: onset, Raised: now,
-			OpenFrac: round2(math.Exp(-l.size / 2))}
+			OpenFrac: round2(d.fitOpenFraction(l.idx, ev))}
 		for i, r := range bTop {
 			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(bScores[i])})
 		}
@@ -335,7 +401,11 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 		return f, true
 	default:
 		l := lTop[0]
-		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(l.size)}
+		size := l.size
+		if ev.dI > 0 {
+			size = ev.dI // the balance measures a leak better than the pressures do
+		}
+		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(size)}
 		for i, r := range lTop {
 			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(lScores[i])})
 		}
