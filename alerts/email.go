@@ -93,7 +93,11 @@ func (e *Email) Send(ctx context.Context, n Notification) error {
 			return classifySMTP(fmt.Errorf("email: %s: auth as %s: %w", addr, e.cfg.Username, err))
 		}
 	}
-	if err := c.SendMail(e.cfg.From, []string{n.To.Email}, bytes.NewReader(msg)); err != nil {
+	envFrom := e.cfg.From
+	if a, err := mail.ParseAddress(e.cfg.From); err == nil {
+		envFrom = a.Address
+	}
+	if err := c.SendMail(envFrom, []string{n.To.Email}, bytes.NewReader(msg)); err != nil {
 		return classifySMTP(fmt.Errorf("email: %s: to %s: %w", addr, n.To.Email, err))
 	}
 	if err := c.Quit(); err != nil {
