@@ -54,6 +54,7 @@ type builder struct {
 	// geom is the backing store of all two-point link geometries.
 	geom     []network.Point
 	nextPipe int
+	groups   map[groupKey]string
 }
 
 func newBuilder(seed uint64, origin network.Point, nodeCap, linkCap int) *builder {
@@ -67,6 +68,7 @@ func newBuilder(seed uint64, origin network.Point, nodeCap, linkCap int) *builde
 		skip:     make([]bool, 0, linkCap),
 		geom:     make([]network.Point, 0, 2*linkCap),
 		nextPipe: 1,
+		groups:   map[groupKey]string{},
 	}
 }
 

@@ -15,10 +15,14 @@ const (
 	designPasses      = 12
 )
 
-// csr is a compressed adjacency of the links the sizing tree may cross.
+// csr is a compressed adjacency of the links the sizing tree may cross,
+// with the far node and tree weight of each entry kept beside the link
+// so that the search touches only these small arrays.
 type csr struct {
-	start []int32 // per node, into adj
-	adj   []int32 // link indices
+	start []int32   // per node, into the entries
+	link  []int32   // link index of each entry
+	node  []int32   // far node of each entry
+	w     []float64 // weighted length of each entry
 }
 
 func (b *builder) adjacency() csr {
@@ -34,24 +38,28 @@ func (b *builder) adjacency() csr {
 	for i := range n {
 		start[i+1] += start[i]
 	}
-	adj := make([]int32, start[n])
+	m := start[n]
+	g := csr{start: start, link: make([]int32, m), node: make([]int32, m), w: make([]float64, m)}
 	fill := append([]int32(nil), start[:n]...)
 	for k, l := range b.links {
 		if b.skip[k] {
 			continue
 		}
-		adj[fill[l.From]] = int32(k)
-		fill[l.From]++
-		adj[fill[l.To]] = int32(k)
-		fill[l.To]++
+		w := l.Length * treeWeight[b.class[k]]
+		for _, e := range [2][2]int{{l.From, l.To}, {l.To, l.From}} {
+			at := fill[e[0]]
+			g.link[at], g.node[at], g.w[at] = int32(k), int32(e[1]), w
+			fill[e[0]]++
+		}
 	}
-	return csr{start: start, adj: adj}
+	return g
 }
 
 // tree is a shortest-path forest from the fixed-head roots.
 type tree struct {
 	order      []int32 // nodes in the order they were settled
 	parentLink []int32 // per node; -1 for roots and unreached nodes
+	parent     []int32 // per node, the node upstream; -1 likewise
 	flow       []float64
 }
 
@@ -66,12 +74,13 @@ func (b *builder) shortestTree(g csr, roots []int, peak float64) tree {
 	t := tree{
 		order:      make([]int32, 0, n),
 		parentLink: make([]int32, n),
+		parent:     make([]int32, n),
 		flow:       make([]float64, len(b.links)),
 	}
 	for i := range t.parentLink {
-		t.parentLink[i] = -1
+		t.parentLink[i], t.parent[i] = -1, -1
 	}
-	h := heap{}
+	h := heap{d: make([]float64, 0, n), v: make([]int32, 0, n)}
 	for _, r := range roots {
 		dist[r] = 0
 		h.push(0, int32(r))
@@ -79,43 +88,34 @@ func (b *builder) shortestTree(g csr, roots []int, peak float64) tree {
 	done := make([]bool, n)
 	for h.len() > 0 {
 		d, u := h.pop()
-		if done[u] || d > dist[u] {
+		if done[u] {
 			continue
 		}
 		done[u] = true
 		t.order = append(t.order, u)
-		for _, k := range g.adj[g.start[u]:g.start[u+1]] {
-			l := &b.links[k]
-			v := int32(l.From)
-			if v == u {
-				v = int32(l.To)
-			}
+		for e := g.start[u]; e < g.start[u+1]; e++ {
+			v := g.node[e]
 			if done[v] {
 				continue
 			}
-			nd := d + l.Length*treeWeight[b.class[k]]
-			if nd < dist[v] {
+			if nd := d + g.w[e]; nd < dist[v] {
 				dist[v] = nd
-				t.parentLink[v] = k
+				t.parentLink[v], t.parent[v] = g.link[e], u
 				h.push(nd, v)
 			}
 		}
 	}
 	acc := make([]float64, n)
+	for i := range b.nodes {
+		if nd := &b.nodes[i]; nd.Kind == network.Junction {
+			acc[i] = nd.Demand * peak
+		}
+	}
 	for i := len(t.order) - 1; i >= 0; i-- {
 		u := t.order[i]
-		nd := &b.nodes[u]
-		if nd.Kind == network.Junction {
-			acc[u] += nd.Demand * peak
-		}
 		if k := t.parentLink[u]; k >= 0 {
 			t.flow[k] = acc[u]
-			l := &b.links[k]
-			p := l.From
-			if p == int(u) {
-				p = l.To
-			}
-			acc[p] += acc[u]
+			acc[t.parent[u]] += acc[u]
 		}
 	}
 	return t
@@ -147,14 +147,41 @@ func (b *builder) design(roots []int, heads []float64, peak float64, cNoise []fl
 	}
 	b.setMaterials(cNoise)
 
-	head := make([]float64, len(b.nodes))
-	loss := make([]float64, len(b.links))
-	stale := make([]bool, len(b.links))
-	for k := range stale {
-		stale[k] = true
+	n := len(b.nodes)
+	head := make([]float64, n)
+	elev := make([]float64, n)
+	junction := make([]bool, n)
+	for i := range b.nodes {
+		elev[i] = b.nodes[i].Elevation
+		junction[i] = b.nodes[i].Kind == network.Junction
 	}
-	low := make([]bool, len(b.nodes))
-	seen := make([]bool, len(b.nodes))
+	// prvSetting[u] is the outlet setting of a pressure-reducing valve
+	// whose outlet is tree node u, else NaN.
+	prvSetting := make([]float64, n)
+	for i := range prvSetting {
+		prvSetting[i] = math.NaN()
+	}
+	for _, u := range t.order {
+		if k := t.parentLink[u]; k >= 0 {
+			l := &b.links[k]
+			if l.Kind == network.Valve && l.Valve == network.PressureReducing && l.To == int(u) {
+				prvSetting[u] = l.Setting
+			}
+		}
+	}
+	loss := make([]float64, len(b.links))
+	lossOf := func(k int32) {
+		if l := &b.links[k]; l.Kind == network.Pipe {
+			loss[k] = hazenLoss(l.Length, t.flow[k], l.Diameter, l.Roughness)
+		}
+	}
+	for _, u := range t.order {
+		if k := t.parentLink[u]; k >= 0 {
+			lossOf(k)
+		}
+	}
+	low := make([]bool, n)
+	seen := make([]bool, n)
 	var path []int32
 	var res designResult
 	for pass := 0; ; pass++ {
@@ -169,24 +196,13 @@ func (b *builder) design(roots []int, heads []float64, peak float64, cNoise []fl
 			if k < 0 {
 				continue
 			}
-			l := &b.links[k]
-			p := l.From
-			if p == int(u) {
-				p = l.To
-			}
-			if stale[k] {
-				stale[k] = false
-				if l.Kind == network.Pipe {
-					loss[k] = hazenLoss(l.Length, t.flow[k], l.Diameter, l.Roughness)
-				}
-			}
-			hu := head[p] - loss[k]
-			if l.Kind == network.Valve && l.Valve == network.PressureReducing && l.To == int(u) {
-				hu = min(hu, b.nodes[u].Elevation+l.Setting)
+			hu := head[t.parent[u]] - loss[k]
+			if s := prvSetting[u]; s == s { // not NaN
+				hu = min(hu, elev[u]+s)
 			}
 			head[u] = hu
-			if b.nodes[u].Kind == network.Junction {
-				pr := hu - b.nodes[u].Elevation
+			if junction[u] {
+				pr := hu - elev[u]
 				res.minPressure = min(res.minPressure, pr)
 				if pr < designMinPressure {
 					low[u] = true
@@ -207,7 +223,7 @@ func (b *builder) design(roots []int, heads []float64, peak float64, cNoise []fl
 			}
 			path = path[:0]
 			steepest := 0.0
-			for v := u; !seen[v]; {
+			for v := u; !seen[v]; v = t.parent[v] {
 				seen[v] = true
 				k := t.parentLink[v]
 				if k < 0 {
@@ -218,17 +234,12 @@ func (b *builder) design(roots []int, heads []float64, peak float64, cNoise []fl
 					path = append(path, k)
 					steepest = max(steepest, loss[k]/l.Length)
 				}
-				if nv := int32(l.From); nv != v {
-					v = nv
-				} else {
-					v = int32(l.To)
-				}
 			}
 			for _, k := range path {
 				if g := loss[k] / b.links[k].Length; g >= 0.5*steepest && g > 0.5e-3 {
 					b.links[k].Diameter = nextSize(b.links[k].Diameter)
 					b.setMaterial(int(k), cNoise)
-					stale[k] = true
+					lossOf(k)
 					changed = true
 				}
 			}
@@ -237,6 +248,12 @@ func (b *builder) design(roots []int, heads []float64, peak float64, cNoise []fl
 			return res
 		}
 	}
+}
+
+// groupKey is a calibration group: material and decade.
+type groupKey struct {
+	material string
+	decade   int
 }
 
 // setMaterials sets material, Hazen-Williams C and group of every pipe
@@ -255,7 +272,14 @@ func (b *builder) setMaterial(k int, cNoise []float64) {
 	l.Material = materialFor(l.Installed, l.Diameter)
 	age := float64(referenceYear - l.Installed)
 	l.Roughness = min(140, max(80, math.Round(hazenC(l.Material, age)+cNoise[k])))
-	l.Group = groupFor(l.Material, l.Installed)
+	// Groups repeat (a few materials by a few decades): share the strings.
+	key := groupKey{l.Material, l.Installed / 10}
+	g, ok := b.groups[key]
+	if !ok {
+		g = groupFor(l.Material, l.Installed)
+		b.groups[key] = g
+	}
+	l.Group = g
 }
 
 // useDarcy replaces every pipe's C factor by its absolute roughness in

@@ -1,8 +1,8 @@
 package netgen
 
 import (
-	"fmt"
 	"math"
+	"strconv"
 )
 
 // Pipe materials written by the generator (the GeoJSON `material` word).
@@ -82,7 +82,7 @@ func absRoughness(material string, age float64) float64 {
 // of installation, e.g. "cast-iron-1950s" (shared/METHODS.md §5 fits
 // roughness per material-and-age group).
 func groupFor(material string, year int) string {
-	return fmt.Sprintf("%s-%ds", material, year/10*10)
+	return material + "-" + strconv.Itoa(year/10*10) + "s"
 }
 
 // standardDiameters are the nominal diameters (mm) the generator uses,

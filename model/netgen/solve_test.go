@@ -9,7 +9,7 @@ import (
 	"plumbline/model/network"
 )
 
-// peakDemand returns each junction's demand at the given hour of its
+// demandAt returns each junction's demand at the given hour of its
 // pattern (base × multiplier).
 func demandAt(net *network.Network, hour int) []float64 {
 	d := make([]float64, len(net.Nodes))
@@ -80,6 +80,18 @@ func TestSolvedPressures(t *testing.T) {
 			t.Logf("%s at %s: pressure %.1f m (%s) to %.1f m (%s), %d iterations", c.name, when.label, lo, loID, hi, hiID, sol.Iterations)
 			if lo < 15 || hi > 90 {
 				t.Errorf("%s at %s: pressures %.1f m (%s) to %.1f m (%s), want all within 15-90 m", c.name, when.label, lo, loID, hi, hiID)
+			}
+			// Sized for about 1 m/s at peak: no pipe should run above
+			// 2 m/s, the usual upper design velocity of distribution
+			// mains (common practice, from memory).
+			vmax, vID := 0.0, ""
+			for k, v := range sol.Velocity {
+				if math.Abs(v) > vmax {
+					vmax, vID = math.Abs(v), c.net.Links[k].ID
+				}
+			}
+			if vmax > 2 {
+				t.Errorf("%s at %s: velocity %.2f m/s in %s, want at most 2 m/s", c.name, when.label, vmax, vID)
 			}
 			if d := math.Abs(drawn - supplied); d > 1e-6*drawn+1e-6 {
 				t.Errorf("%s at %s: junctions draw %.6f L/s, sources supply %.6f L/s (difference %.2g, tolerance 1e-6 relative)", c.name, when.label, drawn, supplied, d)
