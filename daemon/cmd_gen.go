@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 
 	"plumbline/model/netgen"
 	"plumbline/model/network"
@@ -68,30 +69,34 @@ func runGenerate(ctx context.Context, args []string, stdout, stderr io.Writer) e
 		enc.SetIndent("", "  ")
 		return enc.Encode(sum)
 	}
-	fmt.Fprintf(stdout, "wrote %s: %d junctions, %d sources, %d links, %.1f km of pipe, zones %v\n",
-		sum.File, sum.Junctions, sum.Sources, sum.Links, sum.PipeKm, sum.Zones)
+	fmt.Fprintf(stdout, "wrote %s: %d junctions, %d reservoirs, %d tanks, %d links, %.1f km of pipe, %.1f L/s base demand, zones %v\n",
+		sum.File, sum.Junctions, sum.Reservoirs, sum.Tanks, sum.Links, sum.PipeKm, sum.DemandLps, sum.Zones)
 	return nil
 }
 
 // genSummary is what `gen --out F --json` prints.
 type genSummary struct {
-	File      string   `json:"file"`
-	Junctions int      `json:"junctions"`
-	Sources   int      `json:"sources"`
-	Links     int      `json:"links"`
-	PipeKm    float64  `json:"pipe_km"`
-	DemandLps float64  `json:"demand_lps"`
-	Zones     []string `json:"zones"`
+	File       string   `json:"file"`
+	Junctions  int      `json:"junctions"`
+	Reservoirs int      `json:"reservoirs"`
+	Tanks      int      `json:"tanks"`
+	Links      int      `json:"links"`
+	PipeKm     float64  `json:"pipe_km"`
+	DemandLps  float64  `json:"demand_lps"`
+	Zones      []string `json:"zones"`
 }
 
 func summarise(net *network.Network, file string) genSummary {
 	s := genSummary{File: file, Links: len(net.Links), Zones: net.Zones()}
 	for i := range net.Nodes {
-		if nd := &net.Nodes[i]; nd.Kind == network.Junction {
+		switch nd := &net.Nodes[i]; nd.Kind {
+		case network.Junction:
 			s.Junctions++
 			s.DemandLps += nd.Demand
-		} else {
-			s.Sources++
+		case network.Reservoir:
+			s.Reservoirs++
+		case network.Tank:
+			s.Tanks++
 		}
 	}
 	for _, l := range net.Links {
@@ -99,5 +104,7 @@ func summarise(net *network.Network, file string) genSummary {
 			s.PipeKm += l.Length / 1000
 		}
 	}
+	s.PipeKm = math.Round(s.PipeKm*1000) / 1000
+	s.DemandLps = math.Round(s.DemandLps*1000) / 1000
 	return s
 }
