@@ -1,6 +1,10 @@
 package sparse
 
-import "math"
+import (
+	"cmp"
+	"math"
+	"slices"
+)
 
 // Node states in the quotient graph of the minimum degree ordering.
 const (
@@ -39,212 +43,242 @@ func amdOrder(n int, ptr, adj []int) []int {
 	if n == 0 {
 		return order
 	}
+	if n >= math.MaxInt32/4 || ptr[n] >= math.MaxInt32/4 {
+		// 32-bit indices below; a network this large is out of scope.
+		return rcmOrder(n, ptr, adj)
+	}
 	denseLimit := int(10 * math.Sqrt(float64(n)))
 	if denseLimit < 16 {
 		denseLimit = 16
 	}
-	status := make([]int8, n)
+	// Per-node data in one record, so that visiting a node touches one or
+	// two cache lines instead of one per array.
+	type node struct {
+		pe, ln int32 // the node's list in iw
+		elen   int32 // variables: number of elements at the front of the list
+		nv     int32 // weight of a principal supervariable / element
+		degree int32 // variables: approximate external degree; elements: |Le| weighted
+		w      int32 // elements: wflg + |Le \ Lp| during one step
+		next   int32 // degree list
+		prev   int32
+		inLp   int32 // step stamp: member of the current Lp
+		status int8
+	}
+	nd := make([]node, n)
 	nActive := 0
 	for i := 0; i < n; i++ {
 		if ptr[i+1]-ptr[i] > denseLimit {
-			status[i] = stGone
+			nd[i].status = stGone
 		} else {
 			nActive++
 		}
 	}
 	nnz := ptr[n]
-	iwlen := nnz + nnz/2 + 2*n + 16
-	iw := make([]int, iwlen)
-	var spare []int
+	iw := make([]int32, nnz+nnz/2+2*n+16)
+	var spare []int32
 
-	pe := make([]int, n)     // start of the node's list in iw
-	ln := make([]int, n)     // length of the list
-	elen := make([]int, n)   // variables: number of elements at the front of the list
-	nv := make([]int, n)     // weight of a principal supervariable / element
-	degree := make([]int, n) // variables: approximate external degree; elements: |Le| weighted
-	w := make([]int, n)      // elements: wflg + |Le \ Lp| during one step
-	inLp := make([]int, n)   // step stamp: member of the current Lp
-	mark := make([]int, n)   // stamp for list comparison
-	memNext := make([]int, n)
-	memTail := make([]int, n)
-	head := make([]int, n+1) // degree lists
-	next := make([]int, n)
-	prev := make([]int, n)
-	hashHead := make([]int, n)
-	hashNext := make([]int, n)
-	hashOf := make([]int, n)
+	mark := make([]int32, n) // stamp for list comparison
+	memNext := make([]int32, n)
+	memTail := make([]int32, n)
+	head := make([]int32, n+1) // degree lists
+	type candidate struct {
+		hash uint32
+		pos  int32
+		i    int32
+	}
+	cand := make([]candidate, 0, 64)
 	for i := range head {
 		head[i] = -1
 	}
 	for i := 0; i < n; i++ {
-		hashHead[i] = -1
 		memNext[i] = -1
-		memTail[i] = i
+		memTail[i] = int32(i)
 	}
-	insert := func(i, d int) {
-		next[i] = head[d]
-		prev[i] = -1
+	insert := func(i int32, d int32) {
+		x := &nd[i]
+		x.next = head[d]
+		x.prev = -1
 		if head[d] != -1 {
-			prev[head[d]] = i
+			nd[head[d]].prev = i
 		}
 		head[d] = i
 	}
-	remove := func(i int) {
-		if prev[i] != -1 {
-			next[prev[i]] = next[i]
+	remove := func(i int32) {
+		x := &nd[i]
+		if x.prev != -1 {
+			nd[x.prev].next = x.next
 		} else {
-			head[degree[i]] = next[i]
+			head[x.degree] = x.next
 		}
-		if next[i] != -1 {
-			prev[next[i]] = prev[i]
+		if x.next != -1 {
+			nd[x.next].prev = x.prev
 		}
 	}
-	emit := func(i int) {
+	emit := func(i int32) {
 		for x := i; x != -1; x = memNext[x] {
-			order = append(order, x)
+			order = append(order, int(x))
 		}
 	}
 
-	pfree := 0
+	pfree := int32(0)
 	for i := 0; i < n; i++ {
-		if status[i] != stVar {
+		x := &nd[i]
+		if x.status != stVar {
 			continue
 		}
-		pe[i] = pfree
+		x.pe = pfree
 		for _, j := range adj[ptr[i]:ptr[i+1]] {
-			if status[j] == stVar {
-				iw[pfree] = j
+			if nd[j].status == stVar {
+				iw[pfree] = int32(j)
 				pfree++
 			}
 		}
-		ln[i] = pfree - pe[i]
-		nv[i] = 1
-		degree[i] = ln[i]
-		insert(i, degree[i])
+		x.ln = pfree - x.pe
+		x.nv = 1
+		x.degree = x.ln
+		insert(int32(i), x.degree)
 	}
 
-	compact := func(need int) {
+	compact := func(need int32) {
 		if spare == nil {
-			spare = make([]int, len(iw))
+			spare = make([]int32, len(iw))
 		}
-		q := 0
-		for x := 0; x < n; x++ {
-			if status[x] == stVar || status[x] == stElem {
-				copy(spare[q:], iw[pe[x]:pe[x]+ln[x]])
-				pe[x] = q
-				q += ln[x]
+		q := int32(0)
+		for i := range nd {
+			x := &nd[i]
+			if x.status == stVar || x.status == stElem {
+				copy(spare[q:], iw[x.pe:x.pe+x.ln])
+				x.pe = q
+				q += x.ln
 			}
 		}
 		iw, spare = spare, iw
 		pfree = q
-		if pfree+need > len(iw) {
+		if int(pfree+need) > len(iw) {
 			// Cannot happen (the quotient graph never outgrows the graph),
 			// but growing is cheap insurance.
-			grown := make([]int, 2*(pfree+need))
+			grown := make([]int32, 2*(pfree+need))
 			copy(grown, iw[:pfree])
 			iw = grown
-			spare = make([]int, len(grown))
+			spare = make([]int32, len(grown))
 		}
 	}
 
-	nel := 0
-	mindeg := 0
-	wflg := 1
-	stamp := 0
-	mstamp := 0
-	for nel < nActive {
+	nel := int32(0)
+	nAct := int32(nActive)
+	mindeg := int32(0)
+	wflg := int32(1)
+	stamp := int32(0)
+	mstamp := int32(0)
+	for nel < nAct {
 		// 1. The pivot: a variable of least approximate degree.
 		for head[mindeg] == -1 {
 			mindeg++
 		}
 		p := head[mindeg]
 		remove(p)
-		nvp := nv[p]
+		np := &nd[p]
+		nvp := np.nv
 		nel += nvp
 		emit(p)
 
 		// 2. The new element Lp = (A_p ∪ ⋃_{e∈E_p} L_e) \ p, at the end of iw.
-		if pfree+(nActive-nel) > len(iw) {
-			compact(nActive - nel)
+		if int(pfree+(nAct-nel)) > len(iw) {
+			compact(nAct - nel)
 		}
 		stamp++
 		pme1 := pfree
-		degme := 0
-		pp, elenp, lnp := pe[p], elen[p], ln[p]
-		addVar := func(i int) {
-			if status[i] == stVar && inLp[i] != stamp && i != p {
-				inLp[i] = stamp
-				degme += nv[i]
-				iw[pfree] = i
-				pfree++
-				remove(i)
-			}
-		}
-		for kk := 0; kk < lnp; kk++ {
+		degme := int32(0)
+		pp, elenp, lnp := np.pe, np.elen, np.ln
+		for kk := int32(0); kk < lnp; kk++ {
 			e := iw[pp+kk]
 			if kk < elenp {
-				if status[e] != stElem {
+				ne := &nd[e]
+				if ne.status != stElem {
 					continue
 				}
-				for _, i := range iw[pe[e] : pe[e]+ln[e]] {
-					addVar(i)
+				for _, i := range iw[ne.pe : ne.pe+ne.ln] {
+					x := &nd[i]
+					if x.status == stVar && x.inLp != stamp && i != p {
+						x.inLp = stamp
+						degme += x.nv
+						iw[pfree] = i
+						pfree++
+						remove(i)
+					}
 				}
-				status[e] = stDeadElem // absorbed into p
+				ne.status = stDeadElem // absorbed into p
 			} else {
-				addVar(e)
+				x := &nd[e]
+				if x.status == stVar && x.inLp != stamp && e != p {
+					x.inLp = stamp
+					degme += x.nv
+					iw[pfree] = e
+					pfree++
+					remove(e)
+				}
 			}
 		}
-		status[p] = stElem
-		pe[p] = pme1
-		ln[p] = pfree - pme1
-		elen[p] = 0
+		np.status = stElem
+		np.pe = pme1
+		np.ln = pfree - pme1
+		np.elen = 0
 
-		// 3. |Le \ Lp| for every element e touching Lp, kept as w[e]-wflg.
+		// 3. |Le \ Lp| for every element e touching Lp, kept as w-wflg.
+		maxLe := int32(0)
 		for _, i := range iw[pme1:pfree] {
-			nvi := nv[i]
-			for _, e := range iw[pe[i] : pe[i]+elen[i]] {
-				if status[e] != stElem {
+			x := &nd[i]
+			nvi := x.nv
+			for _, e := range iw[x.pe : x.pe+x.elen] {
+				ne := &nd[e]
+				if ne.status != stElem {
 					continue
 				}
-				if w[e] >= wflg {
-					w[e] -= nvi
+				if ne.w >= wflg {
+					ne.w -= nvi
 				} else {
-					w[e] = degree[e] + wflg - nvi
+					ne.w = ne.degree + wflg - nvi
+					if ne.degree > maxLe {
+						maxLe = ne.degree
+					}
 				}
 			}
 		}
 
 		// 4. Degree update, list pruning, mass elimination and hashing.
 		for _, i := range iw[pme1:pfree] {
-			start, elenI, lnI := pe[i], elen[i], ln[i]
+			x := &nd[i]
+			start, elenI, lnI := x.pe, x.elen, x.ln
 			dst := start
-			deg := 0
-			hash := 0
+			deg := int32(0)
+			hash := uint32(0)
 			for _, e := range iw[start : start+elenI] {
-				if status[e] != stElem {
+				ne := &nd[e]
+				if ne.status != stElem {
 					continue
 				}
-				dext := w[e] - wflg
+				dext := ne.w - wflg
 				if dext > 0 {
 					deg += dext
 					iw[dst] = e
 					dst++
-					hash += e
+					hash += uint32(e)
 				} else {
-					status[e] = stDeadElem // aggressive absorption: Le ⊆ Lp
+					ne.status = stDeadElem // aggressive absorption: Le ⊆ Lp
 				}
 			}
 			newElen := dst - start + 1
 			firstVar := dst
 			for kk := start + elenI; kk < start+lnI; kk++ {
 				j := iw[kk]
-				if status[j] != stVar || inLp[j] == stamp {
+				nj := &nd[j]
+				if nj.status != stVar || nj.inLp == stamp {
 					continue
 				}
-				deg += nv[j]
+				deg += nj.nv
 				iw[dst] = j
 				dst++
-				hash += j
+				hash += uint32(j)
 			}
 			// Put p at the end of the element part; at least one entry
 			// (an absorbed element, or p as a variable) was dropped, so
@@ -254,51 +288,58 @@ func amdOrder(n int, ptr, adj []int) []int {
 			}
 			iw[firstVar] = p
 			dst++
-			ln[i] = dst - start
-			elen[i] = newElen
+			x.ln = dst - start
+			x.elen = newElen
 			if deg == 0 {
 				// Mass elimination: i is adjacent to nothing outside Lp.
-				status[i] = stGone
-				degme -= nv[i]
-				nvp += nv[i]
-				nel += nv[i]
+				x.status = stGone
+				degme -= x.nv
+				nvp += x.nv
+				nel += x.nv
 				emit(i)
 				continue
 			}
-			if deg < degree[i] {
-				degree[i] = deg
+			if deg < x.degree {
+				x.degree = deg
 			}
-			h := hash % n
-			hashOf[i] = h
-			hashNext[i] = hashHead[h]
-			hashHead[h] = i
+			cand = append(cand, candidate{hash: hash, pos: int32(len(cand)), i: i})
 		}
 
 		// 5. Supervariables: variables of Lp with identical lists merge.
-		for _, i := range iw[pme1:pfree] {
-			if status[i] != stVar {
-				continue
+		// Candidates are sorted by the hash of their lists (ties in Lp
+		// order) and compared within runs of equal hash.
+		if len(cand) > 1 {
+			slices.SortFunc(cand, func(a, b candidate) int {
+				if a.hash != b.hash {
+					return cmp.Compare(a.hash, b.hash)
+				}
+				return cmp.Compare(a.pos, b.pos)
+			})
+		}
+		for r0 := 0; r0 < len(cand); {
+			r1 := r0 + 1
+			for r1 < len(cand) && cand[r1].hash == cand[r0].hash {
+				r1++
 			}
-			h := hashOf[i]
-			if hashHead[h] == -1 {
-				continue
-			}
-			for a := hashHead[h]; a != -1; a = hashNext[a] {
-				if status[a] != stVar {
+			for ai := r0; ai < r1-1; ai++ {
+				a := cand[ai].i
+				na := &nd[a]
+				if na.status != stVar {
 					continue
 				}
 				mstamp++
-				la := iw[pe[a] : pe[a]+ln[a]]
-				for _, x := range la {
-					mark[x] = mstamp
+				for _, v := range iw[na.pe : na.pe+na.ln] {
+					mark[v] = mstamp
 				}
-				for b := hashNext[a]; b != -1; b = hashNext[b] {
-					if status[b] != stVar || ln[b] != ln[a] || elen[b] != elen[a] {
+				for bi := ai + 1; bi < r1; bi++ {
+					b := cand[bi].i
+					nb := &nd[b]
+					if nb.status != stVar || nb.ln != na.ln || nb.elen != na.elen {
 						continue
 					}
 					same := true
-					for _, x := range iw[pe[b] : pe[b]+ln[b]] {
-						if mark[x] != mstamp {
+					for _, v := range iw[nb.pe : nb.pe+nb.ln] {
+						if mark[v] != mstamp {
 							same = false
 							break
 						}
@@ -306,47 +347,58 @@ func amdOrder(n int, ptr, adj []int) []int {
 					if !same {
 						continue
 					}
-					nv[a] += nv[b]
-					nv[b] = 0
-					status[b] = stGone
-					if degree[b] < degree[a] {
-						degree[a] = degree[b]
+					na.nv += nb.nv
+					nb.nv = 0
+					nb.status = stGone
+					if nb.degree < na.degree {
+						na.degree = nb.degree
 					}
 					memNext[memTail[a]] = b
 					memTail[a] = memTail[b]
 				}
 			}
-			hashHead[h] = -1
+			r0 = r1
 		}
+		cand = cand[:0]
 
 		// 6. Final degrees; Lp keeps only its principal variables.
 		dst := pme1
-		remaining := nActive - nel
+		remaining := nAct - nel
 		for kk := pme1; kk < pfree; kk++ {
 			i := iw[kk]
-			if status[i] != stVar {
+			x := &nd[i]
+			if x.status != stVar {
 				continue
 			}
 			iw[dst] = i
 			dst++
-			d := degree[i] + degme - nv[i]
-			if lim := remaining - nv[i]; d > lim {
+			d := x.degree + degme - x.nv
+			if lim := remaining - x.nv; d > lim {
 				d = lim
 			}
 			if d < 0 {
 				d = 0
 			}
-			degree[i] = d
+			x.degree = d
 			insert(i, d)
 			if d < mindeg {
 				mindeg = d
 			}
 		}
-		ln[p] = dst - pme1
+		np.ln = dst - pme1
 		pfree = dst
-		nv[p] = nvp
-		degree[p] = degme
-		wflg += n + 1
+		np.nv = nvp
+		np.degree = degme
+		// Every w set in this step is below wflg+maxLe+1; restart the
+		// stamps before they could overflow.
+		if wflg > math.MaxInt32-2*int32(n)-2 {
+			for i := range nd {
+				nd[i].w = 0
+			}
+			wflg = 1
+		} else {
+			wflg += maxLe + 1
+		}
 	}
 	for i := 0; i < n; i++ {
 		if ptr[i+1]-ptr[i] > denseLimit {

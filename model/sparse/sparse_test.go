@@ -174,6 +174,14 @@ func TestPermIsPermutation(t *testing.T) {
 // of P A Pᵀ densely: eliminating column k joins all its later neighbours
 // (the graph model of elimination, George & Liu 1981, §5.1.2).
 func bruteForceNNZ(p pattern, perm []int) int {
+	count, _ := bruteForceSymbolic(p, perm)
+	return count
+}
+
+// bruteForceSymbolic returns the nonzero count of L and its elimination
+// tree, parent[j] = min{i > j : L(i,j) != 0} (Liu 1990, §2), by dense
+// symbolic elimination.
+func bruteForceSymbolic(p pattern, perm []int) (int, []int) {
 	n := p.n
 	iperm := invert(perm)
 	nz := make([][]bool, n)
@@ -186,6 +194,7 @@ func bruteForceNNZ(p pattern, perm []int) int {
 		nz[j][i] = true
 	}
 	count := 0
+	parent := make([]int, n)
 	for k := 0; k < n; k++ {
 		count++ // diagonal
 		var below []int
@@ -193,6 +202,10 @@ func bruteForceNNZ(p pattern, perm []int) int {
 			if nz[i][k] {
 				below = append(below, i)
 			}
+		}
+		parent[k] = -1
+		if len(below) > 0 {
+			parent[k] = below[0]
 		}
 		count += len(below)
 		for _, a := range below {
@@ -203,7 +216,7 @@ func bruteForceNNZ(p pattern, perm []int) int {
 			}
 		}
 	}
-	return count
+	return count, parent
 }
 
 // TestNNZBruteForce checks NNZ against an independent dense symbolic
@@ -217,9 +230,12 @@ func TestNNZBruteForce(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			want := bruteForceNNZ(p, sym.Perm())
+			want, parent := bruteForceSymbolic(p, sym.Perm())
 			if got := sym.NNZ(); got != want {
 				t.Errorf("%s/%v: NNZ = %d, want %d (brute force)", p.name, o, got, want)
+			}
+			if !slices.Equal(sym.parent, parent) {
+				t.Errorf("%s/%v: elimination tree differs from the brute-force one", p.name, o)
 			}
 			if sym.StoredNNZ() < sym.NNZ() {
 				t.Errorf("%s/%v: StoredNNZ %d < NNZ %d", p.name, o, sym.StoredNNZ(), sym.NNZ())

@@ -18,21 +18,24 @@ func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int) *Symbolic {
 	for k, v := range post {
 		perm[k] = order[v]
 	}
+	parent = relabelTree(parent, post)
 	iperm = invert(perm)
 	pptr, padj = permutedAdjacency(n, ptr, adj, perm, iperm)
-	parent = etree(n, pptr, padj)
 	counts := columnCounts(n, pptr, padj, parent)
 
-	// Relaxed supernodes; their columns become contiguous in a new postorder.
+	// Relaxed supernodes; their columns become contiguous in a new
+	// topological order, which keeps the elimination tree and the counts.
 	q, sizes := amalgamate(n, parent, counts)
 	perm2 := make([]int, n)
+	counts2 := make([]int, n)
 	for k, v := range q {
 		perm2[k] = perm[v]
+		counts2[k] = counts[v]
 	}
-	perm = perm2
+	perm, counts = perm2, counts2
+	parent = relabelTree(parent, q)
 	iperm = invert(perm)
 	pptr, padj = permutedAdjacency(n, ptr, adj, perm, iperm)
-	parent = etree(n, pptr, padj)
 	nnzL := 0
 	for _, c := range counts {
 		nnzL += c
@@ -111,6 +114,21 @@ func etree(n int, pptr, padj []int) []int {
 		}
 	}
 	return parent
+}
+
+// relabelTree returns the tree parent in new labels, where new node k is old
+// node q[k].
+func relabelTree(parent, q []int) []int {
+	iq := invert(q)
+	out := make([]int, len(parent))
+	for k, v := range q {
+		if p := parent[v]; p != -1 {
+			out[k] = iq[p]
+		} else {
+			out[k] = -1
+		}
+	}
+	return out
 }
 
 // postorder returns a postorder of the forest parent: post[k] is the node
