@@ -30,9 +30,9 @@ const (
 	DemoRising    = "P-rising"   // rising main from the pumping station to the tank
 )
 
-// DemoOrigin is the south-west corner of the demo town: open country,
+// demoOrigin is the south-west corner of the demo town: open country,
 // standing for no real place.
-var DemoOrigin = network.Point{Lon: -102.3954, Lat: 41.3311}
+var demoOrigin = network.Point{Lon: -102.3954, Lat: 41.3311}
 
 // demoSeed fixes the demo town's random stream.
 const demoSeed = 0x5175696c6c6d6572 // "Quillmer"
@@ -58,7 +58,7 @@ func demoTerrain(p vec) float64 {
 // crossings between zones are closed boundary pipes. The result is the
 // same on every call.
 func DemoTown() (*network.Network, error) {
-	b := newBuilder(demoSeed, DemoOrigin, 420, 560)
+	b := newBuilder(demoSeed, demoOrigin, 420, 560)
 	const h = 85.0
 	central := b.addGrid(gridSpec{junctions: 200, origin: vec{0, 1000}, aspect: 1.4, spacing: h,
 		mainEvery: 4, trunkEvery: 2, firstID: 1001, zone: ZoneCentral, elevation: demoTerrain})

@@ -248,3 +248,36 @@ func TestDemoTerrain(t *testing.T) {
 		t.Errorf("ground %.1f-%.1f m, want within about 10-80 m", lo[ZoneLow], hi[ZoneHigh])
 	}
 }
+
+func TestDemoZones(t *testing.T) {
+	net := mustDemo(t)
+	zs := DemoZones(net, DemoSensors(net))
+	got := map[string]ZoneMeters{}
+	for _, z := range zs {
+		got[z.Zone] = z
+	}
+	want := map[string][2][]string{
+		ZoneCentral: {{"F-in-central"}, {"F-in-low", "F-pump-hill"}},
+		ZoneHigh:    {{"F-in-high"}, nil},
+		ZoneLow:     {{"F-in-low"}, nil},
+	}
+	for z, w := range want {
+		g := got[z]
+		out := slices.Clone(g.Outlets)
+		slices.Sort(out)
+		if !slices.Equal(g.Inlets, w[0]) || !slices.Equal(out, w[1]) {
+			t.Errorf("zone %s: inlets %v outlets %v, want %v and %v", z, g.Inlets, out, w[0], w[1])
+		}
+		// Night use: base demand times the night minimum of the patterns
+		// lies between 0.3 and 0.45 of the zone's base demand.
+		var base float64
+		for i := range net.Nodes {
+			if nd := &net.Nodes[i]; nd.Kind == network.Junction && nd.Zone == z {
+				base += nd.Demand
+			}
+		}
+		if r := g.NightUseLps / base; r < 0.3 || r > 0.45 {
+			t.Errorf("zone %s: night use %.2f L/s of base %.2f L/s (ratio %.2f), want 0.3-0.45", z, g.NightUseLps, base, r)
+		}
+	}
+}

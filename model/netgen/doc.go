@@ -3,7 +3,7 @@
 //
 // # What a generated town looks like
 //
-// Town lays junctions on a jittered lattice (about 90 m apart). Every
+// Town(Options) lays junctions on a jittered lattice (about 90 m apart). Every
 // sixth lattice row and column, and the outermost ones, carry mains that
 // form a looped grid; within each block between mains, streets run as
 // branches off the mains, some joined through (small loops), most ending
@@ -28,7 +28,7 @@
 // 75 m. Base demands are residential, 0.01-0.5 L/s per junction, with
 // the "residential" and "commercial" daily patterns of Patterns.
 //
-// Positions are WGS84 around an invented origin (DefaultOrigin), placed
+// Positions are WGS84 around an invented origin (Options.Origin), placed
 // from local metres on a sphere of radius network.EarthRadius, so the
 // great-circle length of a pipe's geometry equals its stored length to
 // well within 0.1 %.
@@ -53,8 +53,18 @@
 // treatment works reservoir, "high" fed by a hill tank that a pumping
 // station fills from the central zone, and "low" fed through a
 // pressure-reducing valve. Each zone has one metered inlet link; the
-// other boundary crossings are closed isolating valves. DemoSensors
-// places the instruments a utility would have on it.
+// other boundary crossings are closed boundary mains (pipes with status
+// closed, standing for shut boundary valves). DemoSensors places the
+// instruments a utility would have on it (inlet flow meters, pressure
+// loggers, tank level, pumping station flow and pressure), with topics
+// "quillmere/<zone>/<sensor id>"; DemoZones says which flow sensors
+// balance each zone; ZoneBoundaries finds the open links crossing each
+// zone's boundary in any network.
+//
+// The committed files configs/demo-town.geojson,
+// testdata/network/town-1k.geojson and testdata/network/town-5k.geojson
+// are written by `plumbline gen` (see files_test.go for the commands)
+// and a test checks they match the generator.
 //
 // # Memory and errors
 //

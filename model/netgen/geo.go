@@ -6,10 +6,10 @@ import (
 	"plumbline/model/network"
 )
 
-// DefaultOrigin is the WGS84 position of the lower-left corner of a
+// defaultOrigin is the WGS84 position of the lower-left corner of a
 // generated town: an arbitrary point in open country, standing for no
-// real place.
-var DefaultOrigin = network.Point{Lon: -102.4817, Lat: 41.2873}
+// real place. Never written (read-only package data).
+var defaultOrigin = network.Point{Lon: -102.4817, Lat: 41.2873}
 
 // vec is a position in local metres: x east, y north of the origin.
 type vec struct{ x, y float64 }

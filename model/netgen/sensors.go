@@ -311,3 +311,98 @@ func pipeDistances(net *network.Network, adj [][]int, from int) []float64 {
 	}
 	return d
 }
+
+// ZoneMeters says which flow sensors balance one zone: the zone's
+// consumption is the sum of its inlet flows less the sum of its outlet
+// flows (each sensor positive in its link's From→To direction, which is
+// into the zone for inlets and out of it for outlets).
+type ZoneMeters struct {
+	Zone    string
+	Inlets  []string // sensor ids
+	Outlets []string // sensor ids
+	// NightUseLps is the zone's legitimate night consumption: its base
+	// demand times each junction's smallest pattern multiplier (L/s).
+	NightUseLps float64
+}
+
+// DemoZones returns the flow sensors that balance each zone, in zone
+// order, for the sensors of DemoSensors (or any list with flow sensors on
+// the boundary links). A boundary link without a sensor of its own is
+// matched to a sensor on a link in series with it (through junctions of
+// no demand joining exactly two open links), as a rising main is metered
+// at its pumping station. A boundary link no sensor measures is left
+// out; compare len(Inlets) with ZoneBoundaries to detect that.
+func DemoZones(net *network.Network, sensors []telemetry.Sensor) []ZoneMeters {
+	onLink := map[string]string{}
+	for _, s := range sensors {
+		if s.Quantity == telemetry.Flow {
+			if _, dup := onLink[s.At]; !dup {
+				onLink[s.At] = s.ID
+			}
+		}
+	}
+	open := make([][]int, len(net.Nodes))
+	for k := range net.Links {
+		if l := &net.Links[k]; l.Status != network.Closed {
+			open[l.From] = append(open[l.From], k)
+			open[l.To] = append(open[l.To], k)
+		}
+	}
+	// meter finds the sensor of link k or of a link in series with it.
+	meter := func(k int) (string, bool) {
+		seen := map[int]bool{}
+		queue := []int{k}
+		for len(queue) > 0 {
+			j := queue[0]
+			queue = queue[1:]
+			if seen[j] {
+				continue
+			}
+			seen[j] = true
+			if id, ok := onLink[net.Links[j].ID]; ok {
+				return id, true
+			}
+			for _, end := range []int{net.Links[j].From, net.Links[j].To} {
+				nd := &net.Nodes[end]
+				if nd.Kind == network.Junction && nd.Demand == 0 && len(open[end]) == 2 {
+					for _, o := range open[end] {
+						queue = append(queue, o)
+					}
+				}
+			}
+		}
+		return "", false
+	}
+	bounds := ZoneBoundaries(net)
+	var out []ZoneMeters
+	for _, z := range net.Zones() {
+		zm := ZoneMeters{Zone: z}
+		for _, k := range bounds[z].Inlets {
+			if id, ok := meter(k); ok {
+				zm.Inlets = append(zm.Inlets, id)
+			}
+		}
+		for _, k := range bounds[z].Outlets {
+			if id, ok := meter(k); ok {
+				zm.Outlets = append(zm.Outlets, id)
+			}
+		}
+		for i := range net.Nodes {
+			nd := &net.Nodes[i]
+			if nd.Kind != network.Junction || nd.Zone != z || nd.Demand == 0 {
+				continue
+			}
+			m := 1.0
+			if p := net.Patterns[nd.Pattern]; len(p) > 0 {
+				m = p[0]
+				for _, v := range p {
+					m = min(m, v)
+				}
+			}
+			zm.NightUseLps += nd.Demand * m
+		}
+		zm.NightUseLps = math.Round(zm.NightUseLps*100) / 100
+		out = append(out, zm)
+	}
+	return out
+}

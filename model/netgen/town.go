@@ -31,7 +31,8 @@ type Options struct {
 	// default) or Darcy-Weisbach (absolute roughness, mm).
 	Headloss network.HeadlossFormula
 	// Origin is the WGS84 position of the town's south-west corner; the
-	// zero value means DefaultOrigin.
+	// zero value means an invented point in open country (41.2873° N,
+	// 102.4817° W), standing for no real place.
 	Origin network.Point
 }
 
@@ -85,7 +86,7 @@ func Town(opts Options) (*network.Network, error) {
 	}
 	origin := opts.Origin
 	if origin == (network.Point{}) {
-		origin = DefaultOrigin
+		origin = defaultOrigin
 	}
 	if math.Abs(origin.Lat) > 80 || math.Abs(origin.Lon) > 180 {
 		return nil, fmt.Errorf("netgen: Options.Origin %v outside latitude ±80°, longitude ±180°", origin)
