@@ -47,6 +47,9 @@ func NewAPI(m *Manager, token []byte) (*API, error) {
 	a.mux.HandleFunc("POST /{id}/ack", a.ack)
 	a.mux.HandleFunc("POST /{id}/shelve", a.shelve)
 	a.mux.HandleFunc("POST /{id}/clear", a.clear)
+	a.mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
+		writeJSON(w, http.StatusNotFound, map[string]string{"error": "no such endpoint: " + r.Method + " " + r.URL.Path})
+	})
 	return a, nil
 }
 

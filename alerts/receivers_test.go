@@ -13,7 +13,6 @@ import (
 	"encoding/hex"
 	"encoding/json"
 	"encoding/pem"
-	"errors"
 	"io"
 	"math/big"
 	"mime/quotedprintable"
@@ -241,7 +240,7 @@ func (s *smtpSession) AuthMechanisms() []string { return []string{sasl.Plain} }
 func (s *smtpSession) Auth(mech string) (sasl.Server, error) {
 	return sasl.NewPlainServer(func(identity, username, password string) error {
 		if username != s.r.user || password != s.r.password {
-			return errors.New("invalid credentials")
+			return smtp.ErrAuthFailed
 		}
 		s.user = username
 		return nil
