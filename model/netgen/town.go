@@ -149,8 +149,13 @@ func Town(opts Options) (*network.Network, error) {
 		rootAt = append(rootAt, at)
 	}
 
-	// Zones: compact regions around well-spread centres.
-	zc := kCentres(crossXY, zones)
+	// Zones: compact regions around well-spread centres (of the main
+	// crossings, or of all junctions when there are too few crossings).
+	pts := crossXY
+	if len(pts) < 4*zones {
+		pts = b.xy[:n]
+	}
+	zc := kCentres(pts, zones)
 	for k := range b.nodes {
 		b.nodes[k].Zone = "zone-" + strconv.Itoa(nearest(zc, b.xy[k])+1)
 	}

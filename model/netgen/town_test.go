@@ -280,6 +280,17 @@ func TestTownTerrainAndDemand(t *testing.T) {
 	}
 }
 
+// TestTownManyZones asks for the most zones allowed and checks each is
+// present (a zone with no junction would be a silent loss).
+func TestTownManyZones(t *testing.T) {
+	for _, c := range []struct{ n, k int }{{20, 5}, {100, 25}, {1000, 250}, {5000, 12}} {
+		net := mustTown(t, Options{Junctions: c.n, Seed: 5, Zones: c.k})
+		if got := len(net.Zones()); got != c.k {
+			t.Errorf("Junctions %d Zones %d: %d zones present", c.n, c.k, got)
+		}
+	}
+}
+
 func TestTownDarcy(t *testing.T) {
 	net := mustTown(t, Options{Junctions: 500, Seed: 3, Headloss: network.DarcyWeisbach})
 	if net.Headloss != network.DarcyWeisbach {
