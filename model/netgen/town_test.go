@@ -131,8 +131,34 @@ func TestTownConnected(t *testing.T) {
 	}
 }
 
+// TestTownConnectedManySizes sweeps small sizes, where partial last rows
+// and blocks without interior nodes are most varied.
+func TestTownConnectedManySizes(t *testing.T) {
+	for n := MinJunctions; n <= 400; n += 7 {
+		for seed := uint64(1); seed <= 2; seed++ {
+			net := mustTown(t, Options{Junctions: n, Seed: seed, Tank: seed == 2})
+			if got := countKind(net, network.Junction); got != n {
+				t.Errorf("Junctions %d seed %d: %d junctions", n, seed, got)
+			}
+			seen := reachable(net)
+			for i := range net.Nodes {
+				if !seen[i] {
+					t.Errorf("Junctions %d seed %d: node %s not connected to a source", n, seed, net.Nodes[i].ID)
+				}
+			}
+			// model/network's own checks: no errors, no warnings.
+			for _, p := range network.Validate(net) {
+				t.Errorf("Junctions %d seed %d: validation: %v", n, seed, p)
+			}
+		}
+	}
+}
+
 func TestTownPipes(t *testing.T) {
 	net := mustTown(t, Options{Junctions: 5000, Seed: 11, Zones: 3})
+	for _, p := range network.Validate(net) {
+		t.Errorf("validation: %v", p)
+	}
 	isStd := map[float64]bool{}
 	for _, d := range standardDiameters {
 		isStd[d] = true
