@@ -3,6 +3,8 @@ package hydraulic
 import (
 	"math"
 	"testing"
+
+	"plumbline/model/network"
 )
 
 // checkLoops verifies Kirchhoff's loop rule on every independent loop:
@@ -31,11 +33,30 @@ func checkLoops(t *testing.T, s *Solver, sol *Solution, tol float64) {
 	pot := make([]float64, nn)
 	done := make([]bool, nn)
 	var q []int
-	for i := range net.Nodes {
-		if net.Nodes[i].IsFixedHead() {
+	root := func(i int) {
+		if !done[i] {
 			pot[i] = sol.Head[i]
 			done[i] = true
 			q = append(q, i)
+		}
+	}
+	for i := range net.Nodes {
+		if net.Nodes[i].IsFixedHead() {
+			root(i)
+		}
+	}
+	// The node an active pressure valve holds has a set head: a root too
+	// (the loop through the valve closes on its setting).
+	for k, l := range net.Links {
+		if sol.State[k] == Active && l.Kind == network.Valve {
+			switch l.Valve {
+			case network.PressureReducing:
+				root(l.To)
+				near(t, "pressure held by "+l.ID, sol.Pressure[l.To], sol.setting[k], 1e-6)
+			case network.PressureSustaining:
+				root(l.From)
+				near(t, "pressure held by "+l.ID, sol.Pressure[l.From], sol.setting[k], 1e-6)
+			}
 		}
 	}
 	adj := make([][]int, nn)
@@ -66,6 +87,10 @@ func checkLoops(t *testing.T, s *Solver, sol *Solution, tol float64) {
 	loops := 0
 	for k, l := range net.Links {
 		if tree[k] || math.IsNaN(loss[k]) {
+			continue
+		}
+		if !done[l.From] || !done[l.To] {
+			t.Errorf("link %s: not reached from any source by open links", l.ID)
 			continue
 		}
 		// fundamental loop of chord k: potential drop along the tree

@@ -379,8 +379,9 @@ func (s *Solver) assemble(sol *Solution) {
 			if l == k {
 				continue
 			}
-			a := s.incidence(l, c)
-			sum += -s.p[l]*delta - a*s.y[l]
+			// The region behind c moves with it, so only the flow
+			// corrections y of c's other links enter the prediction.
+			sum -= s.incidence(l, c) * s.y[l]
 		}
 		pred := -sum / acK
 		s.rhs[jo] += s.incidence(k, o) * pred
@@ -452,7 +453,10 @@ func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 		imb = s.residuals(sol)
 		_ = prev
 		changed := false
-		if dqMax <= opt.StatusFlowChange {
+		// Statuses are examined once the flows settle, and every tenth
+		// iteration while they do not (a wrong status can keep them
+		// from settling, e.g. active valves round a loop).
+		if dqMax <= opt.StatusFlowChange || it%10 == 0 {
 			changed = s.updateStatus(sol, true)
 		}
 		if dqMax <= opt.FlowTolerance && imb <= opt.ImbalanceTolerance && !changed {
@@ -472,11 +476,12 @@ func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 				osc = append(osc, s.net.Links[k].ID)
 			}
 		}
-		if len(osc) == 0 {
+		run := s.runaway(sol)
+		if len(osc) == 0 && len(run) == 0 {
 			sol.Converged = true
 			return sol, nil
 		}
-		return sol, &NotConvergedError{Iterations: it, MaxFlowChange: dqMax, MaxImbalance: imb, Oscillating: osc}
+		return sol, &NotConvergedError{Iterations: it, MaxFlowChange: dqMax, MaxImbalance: imb, Oscillating: osc, Runaway: run}
 	}
 	e := &NotConvergedError{Iterations: it, MaxFlowChange: dqMax, MaxImbalance: imb}
 	for k := range s.lm {
@@ -487,7 +492,22 @@ func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 	if len(e.Oscillating) == 0 {
 		e.Oscillating = s.sortedByFlowChange(10)
 	}
+	e.Runaway = s.runaway(sol)
 	return sol, e
+}
+
+// runawayPressure (m) marks a junction head that has left physics.
+const runawayPressure = 1e4
+
+// runaway returns up to 20 junctions whose pressure left ±runawayPressure.
+func (s *Solver) runaway(sol *Solution) []string {
+	var out []string
+	for _, n := range s.node {
+		if math.Abs(sol.Pressure[n]) > runawayPressure && len(out) < 20 {
+			out = append(out, s.net.Nodes[n].ID)
+		}
+	}
+	return out
 }
 
 func (s *Solver) factorError(err error) error {

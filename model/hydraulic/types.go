@@ -165,11 +165,23 @@ type NotConvergedError struct {
 	// Oscillating names the links whose status kept changing, or, failing
 	// those, the links with the largest flow changes in the last iteration.
 	Oscillating []string
+	// Runaway names junctions whose pressure ran beyond ±10 km of water:
+	// they hang on links that cannot carry their demand (a flow-control
+	// valve set too low, shut check valves), so no steady state exists.
+	Runaway []string
 }
 
 func (e *NotConvergedError) Error() string {
-	return fmt.Sprintf("hydraulic solve did not converge in %d iterations (largest flow change %.3g L/s, largest imbalance %.3g L/s; links %s)",
-		e.Iterations, e.MaxFlowChange, e.MaxImbalance, strings.Join(e.Oscillating, ", "))
+	run := ""
+	if len(e.Runaway) > 0 {
+		run = "; junctions without a feasible supply " + strings.Join(e.Runaway, ", ")
+	}
+	links := ""
+	if len(e.Oscillating) > 0 {
+		links = "; links " + strings.Join(e.Oscillating, ", ")
+	}
+	return fmt.Sprintf("hydraulic solve did not converge in %d iterations (largest flow change %.3g L/s, largest imbalance %.3g L/s%s%s)",
+		e.Iterations, e.MaxFlowChange, e.MaxImbalance, links, run)
 }
 
 // DisconnectedError reports junctions that no open path links to a

@@ -1,0 +1,76 @@
+package hydraulic
+
+import (
+	"math"
+	"testing"
+
+	"plumbline/model/netgen"
+	"plumbline/model/network"
+)
+
+// TestGeneratedNetworksBalance solves towns from model/netgen and checks
+// the two physical laws that need no reference: continuity at every
+// junction to 1e-6 L/s and energy round every independent loop.
+func TestGeneratedNetworksBalance(t *testing.T) {
+	cases := []netgen.Options{
+		{Junctions: 300, Seed: 1},
+		{Junctions: 2500, Seed: 7, Zones: 3, Tank: true},
+		{Junctions: 800, Seed: 3, Headloss: network.DarcyWeisbach},
+	}
+	for _, o := range cases {
+		net, err := netgen.Town(o)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s, sol := mustSolve(t, net, nil)
+		t.Logf("town %d junctions seed %d: %d iterations, imbalance %.2g L/s", o.Junctions, o.Seed, sol.Iterations, sol.MaxImbalance)
+		checkBalance(t, s, sol, 1e-6)
+		checkLoops(t, s, sol, 1e-5)
+		for i := range sol.Head {
+			if math.IsNaN(sol.Head[i]) {
+				t.Fatalf("NaN head at %s", net.Nodes[i].ID)
+			}
+		}
+	}
+	net, err := netgen.DemoTown()
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, sol := mustSolve(t, net, nil)
+	counts := map[LinkState]int{}
+	for _, st := range sol.State {
+		counts[st]++
+	}
+	t.Logf("demo town: %d iterations, states %v", sol.Iterations, counts)
+	checkBalance(t, s, sol, 1e-6)
+	checkLoops(t, s, sol, 1e-5)
+}
+
+// TestSparseAgainstDense solves the same networks with model/sparse and
+// with gonum's dense Cholesky: the heads must agree to rounding.
+func TestSparseAgainstDense(t *testing.T) {
+	for _, net := range []*network.Network{grid(9, 7, true, network.HazenWilliams), sensNet(true), twoLoop()} {
+		a, err := NewSolver(net, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := NewSolver(net, Options{dense: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		sa, err := a.Solve(nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sb, err := b.Solve(nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range sa.Head {
+			near(t, "head "+net.Nodes[i].ID+" sparse vs dense", sa.Head[i], sb.Head[i], 1e-8)
+		}
+		if sa.Iterations != sb.Iterations {
+			t.Errorf("iterations sparse %d, dense %d", sa.Iterations, sb.Iterations)
+		}
+	}
+}
