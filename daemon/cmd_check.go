@@ -9,6 +9,9 @@ import (
 	"os"
 	"strings"
 
+	"go.yaml.in/yaml/v3"
+
+	"plumbline/alerts"
 	"plumbline/daemon/config"
 	"plumbline/model/network"
 )
@@ -56,8 +59,8 @@ type checkSummary struct {
 var errCheckFailed = errors.New("check failed")
 
 // runCheck implements `plumbline check`: it validates a network file
-// (--network) or a service configuration with its network (--config)
-// and prints every problem, one per line with its place, on stdout,
+// (--network) or a service configuration with its network, sensors file
+// and alerts section (--config) and prints every problem, one per line with its place, on stdout,
 // errors and warnings alike; then, if there is no error, a one-line
 // summary. With --json stdout holds one JSON object instead
 // ({"ok", "problems", "summary"}). The exit status is non-zero when
@@ -96,11 +99,14 @@ func runCheck(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		if err != nil {
 			return fmt.Errorf("configuration: %w", err)
 		}
-		c, ps := config.Parse(data, *cfgPath)
+		c, ps := config.Inspect(data, *cfgPath)
 		for _, p := range ps {
 			probs = append(probs, fromConfigProblem(p))
 		}
-		if c != nil {
+		if c != nil && c.Alerts.Kind != 0 {
+			probs = append(probs, alertsProblems(*cfgPath, &c.Alerts)...)
+		}
+		if c != nil && !config.HasErrors(ps) {
 			summary = checkSummarise(c.Network, c.NetworkPath)
 			summary.Config = *cfgPath
 			summary.Sensors = len(c.Sensors)
@@ -135,6 +141,37 @@ func runCheck(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		return fmt.Errorf("%w: %s", errCheckFailed, checkPlural(nErr, "error"))
 	}
 	return nil
+}
+
+// alertsProblems checks the alerts section with package alerts (which
+// owns its format) and places its errors in the configuration file.
+func alertsProblems(file string, node *yaml.Node) []checkProblem {
+	_, err := alerts.DecodeConfig(node)
+	if err == nil {
+		return nil
+	}
+	var list alerts.ConfigErrors
+	if !errors.As(err, &list) {
+		var one alerts.ConfigError
+		if !errors.As(err, &one) {
+			return []checkProblem{{Place: file, Property: "alerts", Message: err.Error(), Severity: "error",
+				text: fmt.Sprintf("%s: alerts: %v", file, err)}}
+		}
+		list = alerts.ConfigErrors{one}
+	}
+	out := make([]checkProblem, 0, len(list))
+	for _, e := range list {
+		p := checkProblem{Place: file, Property: "alerts", Message: e.Msg, Severity: "error"}
+		if e.Line > 0 {
+			p.Place = fmt.Sprintf("%s:%d", file, e.Line)
+		}
+		if e.Path != "" {
+			p.Property = "alerts." + e.Path
+		}
+		p.text = fmt.Sprintf("%s: %s: %s", p.Place, p.Property, p.Message)
+		out = append(out, p)
+	}
+	return out
 }
 
 func fromNetworkProblem(p network.Problem) checkProblem {

@@ -140,3 +140,44 @@ func TestCheckUsage(t *testing.T) {
 		t.Errorf("missing file: got %v, want a read error", err)
 	}
 }
+
+func TestCheckConfigAlertsSection(t *testing.T) {
+	// The alerts section is checked by package alerts; its errors carry
+	// the configuration's file and line. Here the configuration also has
+	// an error of its own (an unknown zone sensor), and both are listed.
+	dir := t.TempDir()
+	net, err := os.ReadFile("../testdata/network/two-loop.geojson")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(dir+"/net.geojson", net, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cfg := `network: net.geojson
+sensors:
+  - {id: F-in, quantity: flow, at: P-1, topic: t/F-in}
+zones:
+  - {id: west, inlets: [F-x]}
+alerts:
+  routes:
+    - name: all
+      levels:
+        - {notify: [nobody]}
+`
+	if err := os.WriteFile(dir+"/c.yaml", []byte(cfg), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, _, err := runCheckArgs(t, "--config", dir+"/c.yaml")
+	if !errors.Is(err, errCheckFailed) {
+		t.Errorf("got error %v, want errCheckFailed", err)
+	}
+	for _, w := range []string{
+		dir + `/c.yaml:5: zone west: inlets: "F-x" is not a sensor of this configuration`,
+		dir + "/c.yaml:10: alerts.routes[0].levels[0].notify",
+		"nobody",
+	} {
+		if !strings.Contains(out, w) {
+			t.Errorf("output lacks %q:\n%s", w, out)
+		}
+	}
+}

@@ -414,3 +414,34 @@ sensors:
 		t.Errorf("merged sensor: got %+v", s)
 	}
 }
+
+func TestCheckURL(t *testing.T) {
+	cases := []struct {
+		url     string
+		schemes []string
+		mqtt    bool
+		ok      bool
+	}{
+		{"tcp://127.0.0.1:1883", mqttSchemes, true, true},
+		{"ssl://broker.example.org:8883", mqttSchemes, true, true},
+		{"wss://broker.example.org/mqtt", mqttSchemes, true, true},
+		{"tcp://[::1]:1883", mqttSchemes, true, true},
+		{"tcp://broker.example.org", mqttSchemes, true, false},
+		{"tcp://:1883", mqttSchemes, true, false},
+		{"tcp://host:99999", mqttSchemes, true, false},
+		{"tcp://user:pw@host:1883", mqttSchemes, true, false},
+		{"tcp://host:1883/path", mqttSchemes, true, false},
+		{"mqtt://host:1883", mqttSchemes, true, false},
+		{"host:1883", mqttSchemes, true, false},
+		{"http://127.0.0.1:8086", []string{"http", "https"}, false, true},
+		{"https://store.example.org", []string{"http", "https"}, false, true},
+		{"https://store.example.org/influx", []string{"http", "https"}, false, true},
+		{"ftp://store.example.org", []string{"http", "https"}, false, false},
+	}
+	for _, c := range cases {
+		err := checkURL(c.url, c.schemes, c.mqtt)
+		if (err == nil) != c.ok {
+			t.Errorf("checkURL(%q): got %v, want ok=%v", c.url, err, c.ok)
+		}
+	}
+}

@@ -51,9 +51,27 @@ func Parse(data []byte, name string) (*Config, []Problem) {
 	return parse(data, name, os.ReadFile)
 }
 
+// Inspect is Parse for tools such as `plumbline check`: it returns the
+// configuration as far as it could be decoded even when there are
+// errors (nil only when the file is not YAML at all), so that sections
+// decoded elsewhere (alerts) can be checked too. Fields with errors
+// hold their defaults or zero values; Network is nil if the network
+// file has errors. Do not run a service on it.
+func Inspect(data []byte, name string) (*Config, []Problem) {
+	return parseKeep(data, name, os.ReadFile)
+}
+
 // parse is Parse with the function that reads the network and sensors
 // files (the fuzz test confines it to testdata).
 func parse(data []byte, name string, readFile func(string) ([]byte, error)) (*Config, []Problem) {
+	c, probs := parseKeep(data, name, readFile)
+	if HasErrors(probs) {
+		return nil, probs
+	}
+	return c, probs
+}
+
+func parseKeep(data []byte, name string, readFile func(string) ([]byte, error)) (*Config, []Problem) {
 	l := &loader{file: name, dir: filepath.Dir(name), readFile: readFile}
 	c := l.load(data)
 	sort.SliceStable(l.probs, func(i, j int) bool {
@@ -63,9 +81,6 @@ func parse(data []byte, name string, readFile func(string) ([]byte, error)) (*Co
 		}
 		return a.Line < b.Line
 	})
-	if HasErrors(l.probs) {
-		return nil, l.probs
-	}
 	return c, l.probs
 }
 
@@ -579,13 +594,17 @@ func checkURL(u string, schemes []string, noPath bool) error {
 	if strings.Contains(host, "@") {
 		return fmt.Errorf("%q: credentials do not go in the url (use username and password_file)", u)
 	}
-	if h, port, err := splitHostPort(host); err == nil {
-		if h == "" {
-			return fmt.Errorf("%q: no host", u)
-		}
+	h, port, err := splitHostPort(host)
+	switch {
+	case err == nil && h == "":
+		return fmt.Errorf("%q: no host", u)
+	case err == nil:
 		if p, err := strconv.Atoi(port); err != nil || p < 1 || p > 65535 {
 			return fmt.Errorf("%q: port %q is not a number from 1 to 65535", u, port)
 		}
+	case noPath && scheme != "ws" && scheme != "wss":
+		// The MQTT client dials host:port as written: no default port.
+		return fmt.Errorf("%q: no port (MQTT is usually 1883, 8883 with TLS)", u)
 	}
 	if noPath && path != "" && scheme != "ws" && scheme != "wss" {
 		return fmt.Errorf("%q: a %s url has no path", u, scheme)

@@ -9,8 +9,10 @@ import (
 	"math"
 	"os"
 	"sort"
+	"strconv"
 	"strings"
 	"time"
+	"unicode/utf8"
 )
 
 // Read reads a network file (shared/CONTRACT.md "Network file") from r.
@@ -83,6 +85,9 @@ type parser struct {
 	// reported marks (feature index, property) pairs that already have a
 	// problem, so that validation does not repeat them.
 	reported map[[2]any]bool
+	// lastOff and lastLine cache the last lineAt answer.
+	lastOff  int64
+	lastLine int
 }
 
 // feature is one raw feature with its place.
@@ -116,7 +121,9 @@ func (p *parser) fileWarning(line int, prop, format string, args ...any) {
 	p.add(Problem{Line: line, Index: -1, Property: prop, Message: fmt.Sprintf(format, args...), Severity: Warning})
 }
 
-// lineAt returns the 1-based line of byte offset off.
+// lineAt returns the 1-based line of byte offset off. Offsets mostly
+// come in increasing order (feature by feature), so it counts on from
+// the last one asked rather than from the start of the file.
 func (p *parser) lineAt(off int64) int {
 	if off > int64(len(p.data)) {
 		off = int64(len(p.data))
@@ -124,7 +131,15 @@ func (p *parser) lineAt(off int64) int {
 	if off < 0 {
 		off = 0
 	}
-	return bytes.Count(p.data[:off], []byte{'\n'}) + 1
+	if off < p.lastOff {
+		p.lastOff, p.lastLine = 0, 1
+	}
+	if p.lastLine == 0 {
+		p.lastLine = 1
+	}
+	p.lastLine += bytes.Count(p.data[p.lastOff:off], []byte{'\n'})
+	p.lastOff = off
+	return p.lastLine
 }
 
 // skipSpace moves off past JSON white space and separators to the next token.
@@ -577,6 +592,9 @@ func (fc *featureCtx) number(key string, required bool) (x float64, present bool
 		}
 		return 0, false
 	}
+	if v, ok := fastNumber(raw); ok {
+		return v, true
+	}
 	if err := json.Unmarshal(raw, &x); err != nil {
 		if len(raw) > 0 && (raw[0] == '-' || (raw[0] >= '0' && raw[0] <= '9')) {
 			fc.problem(Error, key, "number %s is out of range", jsonKind(raw)[len("number "):])
@@ -596,12 +614,39 @@ func (fc *featureCtx) str(key string, required bool) (string, bool) {
 		}
 		return "", false
 	}
+	if v, ok := fastString(raw); ok {
+		return v, true
+	}
 	var s string
 	if err := json.Unmarshal(raw, &s); err != nil {
 		fc.problem(Error, key, "want a string, got %s", jsonKind(raw))
 		return "", false
 	}
 	return s, true
+}
+
+// fastNumber parses raw, already valid JSON, when it is a number; JSON's
+// number grammar is a subset of strconv's.
+func fastNumber(raw json.RawMessage) (float64, bool) {
+	if len(raw) == 0 || !(raw[0] == '-' || raw[0] >= '0' && raw[0] <= '9') {
+		return 0, false
+	}
+	v, err := strconv.ParseFloat(string(raw), 64)
+	return v, err == nil
+}
+
+// fastString returns raw, already valid JSON, as a string when it is a
+// string with no escapes and valid UTF-8 (so the same as json.Unmarshal
+// gives).
+func fastString(raw json.RawMessage) (string, bool) {
+	if len(raw) < 2 || raw[0] != '"' || raw[len(raw)-1] != '"' {
+		return "", false
+	}
+	body := raw[1 : len(raw)-1]
+	if bytes.IndexByte(body, '\\') >= 0 || !utf8.Valid(body) {
+		return "", false
+	}
+	return string(body), true
 }
 
 func (fc *featureCtx) boolean(key string) (bool, bool) {

@@ -484,3 +484,31 @@ func TestWarnings(t *testing.T) {
 		}
 	}
 }
+
+func TestPlaceWarnings(t *testing.T) {
+	// J1 and J2 are 0.01° of latitude apart: R·π/180·0.01 = 1111.95 m on
+	// the IUGG mean sphere (geometry of the sphere).
+	src := `{"type": "FeatureCollection", "features": [
+{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, 45]}, "properties": {"id": "R", "kind": "reservoir", "head_m": 50}},
+{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, 45.01]}, "properties": {"id": "J", "kind": "junction", "elevation_m": 10}},
+{"type": "Feature", "geometry": null, "properties": {"id": "P1", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 500}},
+{"type": "Feature", "geometry": null, "properties": {"id": "P2", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1050}},
+{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9.01, 45], [9, 45.01]]}, "properties": {"id": "P3", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}},
+{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9, 45.01], [9.0001, 45]]}, "properties": {"id": "P4", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}}
+]}`
+	_, probs := Parse([]byte(src), "p.geojson")
+	var got []string
+	for _, p := range probs {
+		got = append(got, p.String())
+	}
+	want := []string{
+		"p.geojson:4: feature P1: length_m: warning: 500 m is shorter than the 1112 m between nodes R and J",
+		// 0.01° of longitude at 45°N: 1111.95 m · cos 45° = 786.3 m.
+		"p.geojson:6: feature P3: geometry: warning: the line ends 786 m from its nodes R and J: check from and to",
+	}
+	// P2 (1050 m) is within the 10 % allowance; P4 runs To→From and ends
+	// 8 m from R: both legal.
+	if strings.Join(got, "\n") != strings.Join(want, "\n") {
+		t.Errorf("got:\n  %s\nwant:\n  %s", strings.Join(got, "\n  "), strings.Join(want, "\n  "))
+	}
+}

@@ -245,6 +245,9 @@ func (v *validator) link(i int) {
 	if l.From == l.To && l.From >= 0 && l.From < nn {
 		v.linkP(Error, i, "to", "link from node %q to itself", v.n.Nodes[l.From].ID)
 	}
+	if l.From >= 0 && l.From < nn && l.To >= 0 && l.To < nn && l.From != l.To {
+		v.linkPlace(i)
+	}
 	if l.Status != Open && l.Status != Closed {
 		v.linkP(Error, i, "status", "unknown status %d", l.Status)
 	}
@@ -309,6 +312,36 @@ func (v *validator) link(i int) {
 		}
 	default:
 		v.linkP(Error, i, "kind", "unknown link kind %v", l.Kind)
+	}
+}
+
+// endTolerance is how far (m) a link's geometry may end from its nodes'
+// points before a warning: mapping and snapping slack (common practice,
+// no source).
+const endTolerance = 25
+
+// linkPlace compares a link with the positions of its end nodes: a pipe
+// cannot be shorter than the great circle between its ends (less a
+// 10 % and 1 m allowance for schematic coordinates), and a polyline
+// should start and end at its nodes (either way round).
+func (v *validator) linkPlace(i int) {
+	l := &v.n.Links[i]
+	a, b := &v.n.Nodes[l.From], &v.n.Nodes[l.To]
+	if !a.HasCoord || !b.HasCoord {
+		return
+	}
+	if l.Kind == Pipe && l.Length > 0 {
+		if straight := GreatCircle(a.Coord, b.Coord); l.Length < 0.9*straight-1 {
+			v.linkP(Warning, i, "length_m", "%g m is shorter than the %.0f m between nodes %s and %s", l.Length, straight, a.ID, b.ID)
+		}
+	}
+	if len(l.Geometry) >= 2 {
+		g0, g1 := l.Geometry[0], l.Geometry[len(l.Geometry)-1]
+		fwd := max(GreatCircle(g0, a.Coord), GreatCircle(g1, b.Coord))
+		rev := max(GreatCircle(g0, b.Coord), GreatCircle(g1, a.Coord))
+		if off := min(fwd, rev); off > endTolerance {
+			v.linkP(Warning, i, "geometry", "the line ends %.0f m from its nodes %s and %s: check from and to", off, a.ID, b.ID)
+		}
 	}
 }
 
