@@ -243,7 +243,7 @@ operator_url: https://ops.example.org/
 			t.Errorf("first email body lacks %q:\n%s", want, first.Body)
 		}
 	}
-	if s := first.Header.Get("Subject"); !strings.HasPrefix(s, "[URGENT] NEW: URGENT leak in zone north") {
+	if s := first.Header.Get("Subject"); !strings.HasPrefix(s, "[URGENT] NEW: leak in zone north, 6.2 L/s, best J-117 (AL-000001)") {
 		t.Errorf("first email subject: got %q", s)
 	}
 	var escal string

@@ -55,7 +55,7 @@ func Subject(n Notification) string {
 		return fmt.Sprintf("plumbline: %d alert notifications held back by the hourly limit", len(n.Held))
 	}
 	a := n.Alert
-	s := fmt.Sprintf("[%s] %s: %s", strings.ToUpper(string(a.Severity)), noticeLead(n), headline(a))
+	s := fmt.Sprintf("[%s] %s: %s in zone %s", strings.ToUpper(string(a.Severity)), noticeLead(n), a.Kind, a.Zone)
 	if m := measure(a); m != "" {
 		s += ", " + m
 	}
