@@ -32,7 +32,7 @@ const (
 
 // demoOrigin is the south-west corner of the demo town: open country,
 // standing for no real place.
-var demoOrigin = network.Point{Lon: -102.3954, Lat: 41.3311}
+var demoOrigin = network.Point{Lon: 126.3128, Lat: -24.8645}
 
 // demoSeed fixes the demo town's random stream.
 const demoSeed = 0x5175696c6c6d6572 // "Quillmer"

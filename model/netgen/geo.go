@@ -9,7 +9,7 @@ import (
 // defaultOrigin is the WGS84 position of the lower-left corner of a
 // generated town: an arbitrary point in open country, standing for no
 // real place. Never written (read-only package data).
-var defaultOrigin = network.Point{Lon: -102.4817, Lat: 41.2873}
+var defaultOrigin = network.Point{Lon: 126.1837, Lat: -24.9312}
 
 // vec is a position in local metres: x east, y north of the origin.
 type vec struct{ x, y float64 }

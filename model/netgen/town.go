@@ -31,8 +31,8 @@ type Options struct {
 	// default) or Darcy-Weisbach (absolute roughness, mm).
 	Headloss network.HeadlossFormula
 	// Origin is the WGS84 position of the town's south-west corner; the
-	// zero value means an invented point in open country (41.2873° N,
-	// 102.4817° W), standing for no real place.
+	// zero value means an arbitrary point in open country (24.9312° S,
+	// 126.1837° E), standing for no real place.
 	Origin network.Point
 }
 
@@ -93,8 +93,14 @@ func Town(opts Options) (*network.Network, error) {
 	}
 
 	n := opts.Junctions
-	b := newBuilder(opts.Seed, origin, n+sources+1, n*13/10+sources+2)
 	side := townSpacing * math.Sqrt(float64(n))
+	// The town spans side m (plus a source pipe) east and north of the
+	// origin; it must not cross the antimeridian or the 85° parallel.
+	span := (side + 1000) / network.EarthRadius / degree
+	if origin.Lon+span/math.Cos((math.Abs(origin.Lat)+span)*degree) > 180 || origin.Lat+span > 85 {
+		return nil, fmt.Errorf("netgen: Options.Origin %v: a %d-junction town (%.0f km across) would cross longitude 180° or latitude 85°", origin, n, side/1000)
+	}
+	b := newBuilder(opts.Seed, origin, n+sources+1, n*13/10+sources+2)
 	ter := newTerrain(b.rng, vec{side, side}, terrainBase, terrainSpan)
 	g := b.addGrid(gridSpec{
 		junctions:  n,

@@ -216,6 +216,29 @@ func TestTownPipes(t *testing.T) {
 	}
 }
 
+// TestTownOrigins places towns at other latitudes, both hemispheres, and
+// checks positions stay valid WGS84 and lengths metric.
+func TestTownOrigins(t *testing.T) {
+	for _, o := range []network.Point{{Lon: 10, Lat: 62}, {Lon: -70.5, Lat: -45}, {Lon: 179.5, Lat: 0.5}} {
+		net := mustTown(t, Options{Junctions: 2000, Seed: 2, Origin: o})
+		for i := range net.Nodes {
+			c := net.Nodes[i].Coord
+			if c.Lon < -180 || c.Lon > 180 || c.Lat < -90 || c.Lat > 90 {
+				t.Fatalf("origin %v: node %s at %v, not a WGS84 position", o, net.Nodes[i].ID, c)
+			}
+		}
+		for _, l := range net.Links {
+			if l.Kind != network.Pipe {
+				continue
+			}
+			h := haversine(l.Geometry[0], l.Geometry[1])
+			if d := math.Abs(h - l.Length); d > 1e-3*l.Length+0.01 {
+				t.Errorf("origin %v: pipe %s haversine %.3f m, stored %.3f m (tolerance 0.1%% + 1 cm)", o, l.ID, h, l.Length)
+			}
+		}
+	}
+}
+
 func TestTownMaterials(t *testing.T) {
 	net := mustTown(t, Options{Junctions: 8000, Seed: 5})
 	// Year ranges by material (the brief's succession, common practice).
@@ -345,6 +368,7 @@ func TestTownBadOptions(t *testing.T) {
 		{Options{Junctions: 100, Sources: 500}, "Sources"},
 		{Options{Junctions: 100, Headloss: 9}, "Headloss"},
 		{Options{Junctions: 100, Origin: network.Point{Lon: 10, Lat: 89}}, "Origin"},
+		{Options{Junctions: 100000, Origin: network.Point{Lon: 179.9, Lat: 10}}, "Origin"},
 	} {
 		_, err := Town(c.o)
 		if err == nil || !strings.Contains(err.Error(), c.want) {
