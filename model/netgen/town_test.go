@@ -211,6 +211,28 @@ func TestTownPipes(t *testing.T) {
 			large++
 		}
 	}
+	// Looped mains with branched streets: a share of dead ends, and
+	// independent loops (links − nodes + 1 for a connected network,
+	// Euler's formula for graphs).
+	deg := make([]int, len(net.Nodes))
+	for _, l := range net.Links {
+		deg[l.From]++
+		deg[l.To]++
+	}
+	dead := 0
+	for i := range net.Nodes {
+		if net.Nodes[i].Kind == network.Junction && deg[i] == 1 {
+			dead++
+		}
+	}
+	loops := len(net.Links) - len(net.Nodes) + 1
+	t.Logf("5000 junctions: %d dead ends, %d independent loops", dead, loops)
+	if dead < 5000/20 || dead > 5000*3/10 {
+		t.Errorf("%d dead-end junctions of 5000, want 5-30%%", dead)
+	}
+	if loops < 5000/20 {
+		t.Errorf("%d independent loops, want at least one per 20 junctions", loops)
+	}
 	if small < n/2 || large == 0 {
 		t.Errorf("pipes ≤150 mm: %d, ≥300 mm: %d of %d; want streets the majority and some trunk mains", small, large, n)
 	}
