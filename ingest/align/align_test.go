@@ -148,11 +148,11 @@ func TestStartAndFlush(t *testing.T) {
 func TestQuality(t *testing.T) {
 	step := time.Minute
 	sensors := []telemetry.Sensor{
-		{ID: "R", Min: 0, Max: 80},                                         // range
+		{ID: "R", Min: 0, Max: 80}, // range
 		{ID: "S", Quantity: telemetry.Pressure, Unit: "m", Accuracy: 0.05}, // spike
-		{ID: "K"},                                                          // stuck
-		{ID: "G"},                                                          // gaps: stale then missing
-		{ID: "L"},                                                          // level shift: not a spike
+		{ID: "K"}, // stuck
+		{ID: "G"}, // gaps: stale then missing
+		{ID: "L"}, // level shift: not a spike
 	}
 	a, s := newAligner(t, Config{Step: step, Sensors: sensors, StuckAfter: 10 * time.Minute, StaleAfter: 3 * step})
 	rng := rand.New(rand.NewPCG(1, 1))
@@ -372,7 +372,9 @@ func TestConfigErrors(t *testing.T) {
 	}
 }
 
-func contains(s, sub string) bool { return len(sub) == 0 || (len(s) >= len(sub) && indexOf(s, sub) >= 0) }
+func contains(s, sub string) bool {
+	return len(sub) == 0 || (len(s) >= len(sub) && indexOf(s, sub) >= 0)
+}
 
 func indexOf(s, sub string) int {
 	for i := 0; i+len(sub) <= len(s); i++ {
