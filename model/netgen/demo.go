@@ -61,13 +61,13 @@ func DemoTown() (*network.Network, error) {
 	b := newBuilder(demoSeed, demoOrigin, 420, 560)
 	const h = 85.0
 	central := b.addGrid(gridSpec{junctions: 200, origin: vec{0, 1000}, aspect: 1.4, spacing: h,
-		mainEvery: 4, trunkEvery: 2, firstID: 1001, zone: ZoneCentral, elevation: demoTerrain})
+		mainEvery: 4, trunkEvery: 3, firstID: 1001, zone: ZoneCentral, elevation: demoTerrain})
 	nc := len(b.nodes)
 	high := b.addGrid(gridSpec{junctions: 100, origin: vec{300, 2200}, aspect: 1, spacing: h,
-		mainEvery: 3, trunkEvery: 3, firstID: 2001, zone: ZoneHigh, elevation: demoTerrain})
+		mainEvery: 3, trunkEvery: 0, firstID: 2001, zone: ZoneHigh, elevation: demoTerrain})
 	nh := len(b.nodes)
 	low := b.addGrid(gridSpec{junctions: 100, origin: vec{350, 0}, aspect: 1, spacing: h,
-		mainEvery: 3, trunkEvery: 3, firstID: 3001, zone: ZoneLow, elevation: demoTerrain})
+		mainEvery: 3, trunkEvery: 0, firstID: 3001, zone: ZoneLow, elevation: demoTerrain})
 	nl := len(b.nodes)
 
 	cc := vec{8 * h, 1000 + 5.5*h}
