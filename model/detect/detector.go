@@ -43,6 +43,9 @@ type Detector struct {
 
 	designNight, designBurst, designResid CUSUM
 
+	// raised and updated collect this step's new and revised findings.
+	raised, updated []finding.Finding
+
 	st state
 }
 
@@ -54,6 +57,9 @@ type sensorInfo struct {
 	floor float64
 	// evidence: a pressure or head sensor whose residual is tested
 	evidence bool
+	// pumpOff is the flow (L/s) below which a meter on a pump says the
+	// pump is stopped.
+	pumpOff float64
 }
 
 type zoneInfo struct {
@@ -82,6 +88,8 @@ type state struct {
 	Sensors   []sensorState
 	Zones     []zoneState
 	Findings  []finding.Finding
+	// Watch holds the findings whose location is still being refined.
+	Watch []watch
 	// MeanMult is each zone's moving mean inflow-matched multiplier, for
 	// the average operating point at which signatures are computed.
 	MeanMult []float64
@@ -182,8 +190,9 @@ type StepResult struct {
 	// Nights holds the night-flow figures of zones whose night window
 	// ended at this step.
 	Nights []NightFlow
-	// Findings raised at this step.
-	Findings []finding.Finding
+	// Findings raised at this step, and earlier findings whose
+	// candidates, size or evidence this step revised.
+	Findings, Updated []finding.Finding
 	// Iterations of the two solves.
 	Iterations int
 }
@@ -276,6 +285,13 @@ func New(cfg Config) (*Detector, error) {
 			sigma = n
 		}
 		info.floor = math.Max(0.01, sigma/math.Sqrt(stepsPerHour))
+		if info.link >= 0 && d.net.Links[info.link].Kind == network.Pump {
+			duty := 0.0
+			if c := d.net.Links[info.link].Curve; len(c) > 0 {
+				duty = c[len(c)/2][0]
+			}
+			info.pumpOff = math.Max(math.Max(0.05, 3*sigma), 0.1*duty)
+		}
 		d.sens = append(d.sens, info)
 		d.bySensor[s.ID] = si
 	}
@@ -403,10 +419,10 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	hour := t.Truncate(time.Hour)
 	res := &StepResult{Time: t}
 	if !d.st.Hour.IsZero() && hour.After(d.st.Hour) {
-		res.Findings = append(res.Findings, d.closeHour(d.st.Hour)...)
+		d.closeHour(d.st.Hour)
 	}
 	d.st.Hour = hour
-	res.Findings = append(res.Findings, d.qualityFaults(snap)...)
+	d.qualityFaults(snap)
 
 	// Boundary conditions from telemetry: tank levels, source heads.
 	nn := len(d.net.Nodes)
@@ -417,9 +433,23 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	for i := range d.cond.FixedHead {
 		d.cond.FixedHead[i] = math.NaN()
 	}
+	if d.cond.Status == nil {
+		d.cond.Status = make([]network.Status, len(d.net.Links))
+	}
+	for l := range d.net.Links {
+		d.cond.Status[l] = d.net.Links[l].Status
+	}
 	for si, info := range d.sens {
 		a := snap.Values[si]
-		if !usable(a) || d.st.Sensors[si].Excluded || info.node < 0 {
+		if !usable(a) || d.st.Sensors[si].Excluded {
+			continue
+		}
+		if info.link >= 0 {
+			// A pump whose own flow meter reads less than a tenth of its
+			// duty flow, or within three σ of zero, is stopped.
+			if d.net.Links[info.link].Kind == network.Pump && math.Abs(a.Value) < info.pumpOff {
+				d.cond.Status[info.link] = network.Closed
+			}
 			continue
 		}
 		n := &d.net.Nodes[info.node]
@@ -479,7 +509,7 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		zb.BurstStat, zb.BurstThreshold = zs.Burst.S, zs.Burst.H
 		res.Zones[zi] = zb
 	}
-	res.Nights, res.Findings = d.closeNights(t, res.Findings)
+	res.Nights = d.closeNights(t)
 
 	// Inflow-matched solve: each zone's demand scaled to its measured inflow.
 	for i := range d.cond.Demand {
@@ -517,7 +547,8 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		}
 	}
 	d.st.Steps++
-	d.st.Findings = append(d.st.Findings, res.Findings...)
+	res.Findings, d.raised = d.raised, nil
+	res.Updated, d.updated = d.updated, nil
 	return res, nil
 }
 
@@ -593,7 +624,7 @@ func (d *Detector) nightStep(zi int, t time.Time, imbalance, inflow float64) {
 }
 
 // closeNights runs the night test for every zone whose window has ended.
-func (d *Detector) closeNights(t time.Time, found []finding.Finding) ([]NightFlow, []finding.Finding) {
+func (d *Detector) closeNights(t time.Time) []NightFlow {
 	var out []NightFlow
 	for zi := range d.zones {
 		zs := &d.st.Zones[zi]
@@ -633,10 +664,7 @@ func (d *Detector) closeNights(t time.Time, found []finding.Finding) ([]NightFlo
 			alarm := zs.Night.Update(zs.NightStart, z)
 			if alarm {
 				size := zs.Night.Shift() * sigma
-				f, ok := d.zoneHypothesis(zi, zs.Night.Onset, t, size, fmt.Sprintf("night imbalance %+.2f L/s above the median of the last %d nights (%.1fσ)", size, len(zs.Nights), size/sigma))
-				if ok {
-					found = append(found, f)
-				}
+				d.zoneHypothesis(zi, zs.Night.Onset, t, size, fmt.Sprintf("night imbalance %+.2f L/s above the median of the last %d nights (%.1fσ)", size, len(zs.Nights), size/sigma))
 			}
 			if zs.Night.S < zs.Night.H/2 {
 				zs.Nights = appendCapped(zs.Nights, adj, 28)
@@ -647,7 +675,7 @@ func (d *Detector) closeNights(t time.Time, found []finding.Finding) ([]NightFlo
 		nf.Statistic, nf.Threshold, nf.NightsUsed = zs.Night.S, zs.Night.H, len(zs.Nights)
 		out = append(out, nf)
 	}
-	return out, found
+	return out
 }
 
 func appendCapped(xs []float64, x float64, n int) []float64 {
@@ -662,7 +690,7 @@ func appendCapped(xs []float64, x float64, n int) []float64 {
 // rings and baselines, then the burst and residual tests. Every series is
 // brought up to date before any hypothesis is weighed, so each sees the
 // same hour of evidence.
-func (d *Detector) closeHour(h time.Time) []finding.Finding {
+func (d *Detector) closeHour(h time.Time) {
 	learned := d.st.Steps >= d.cfg.LearnNights*int(24*time.Hour/d.cfg.Step)
 	minPerHour := max(1, int(time.Hour/d.cfg.Step)/2)
 	type alarm struct {
@@ -671,6 +699,10 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 		size, sigma  float64
 	}
 	var alarms []alarm
+	hourly := make([]float64, len(d.sens))
+	for i := range hourly {
+		hourly[i] = math.NaN()
+	}
 	for zi := range d.zones {
 		zs := &d.st.Zones[zi]
 		a := d.st.ZoneAcc[zi]
@@ -727,6 +759,7 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 			continue
 		}
 		x := a.Sum / float64(a.N)
+		hourly[si] = x
 		dev := ss.Base.Deviation(hr, x)
 		if ss.Excluded {
 			// A faulty logger comes back into the evidence after a day of
@@ -764,8 +797,8 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 			ss.Base.Update(hr, x)
 		}
 	}
-	var found []finding.Finding
 	end := h.Add(time.Hour)
+	d.refine(h, hourly)
 	for _, al := range alarms {
 		if al.sensor < 0 {
 			zs := &d.st.Zones[al.zone]
@@ -775,8 +808,7 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 			size, _ := zs.Ring.since(al.onset)
 			size -= al.size
 			why := fmt.Sprintf("zone imbalance jumped %+.2f L/s above its level of the hours before (%.1fσ of the hourly scatter)", size, size/al.sigma)
-			if f, ok := d.zoneHypothesis(al.zone, al.onset, end, size, why); ok {
-				found = append(found, f)
+			if d.zoneHypothesis(al.zone, al.onset, end, size, why) {
 				zs.Level = 0
 				zs.LevelN = 0
 			}
@@ -786,18 +818,14 @@ func (d *Detector) closeHour(h time.Time) []finding.Finding {
 		if ss.Up.S <= ss.Up.H && ss.Down.S <= ss.Down.H {
 			continue
 		}
-		if f, ok := d.residualHypothesis(al.sensor, al.onset, end); ok {
-			found = append(found, f)
-		}
+		d.residualHypothesis(al.sensor, al.onset, end)
 	}
-	return found
 }
 
 // qualityFaults raises sensor faults that ingest's quality flags and the
 // stuck test show directly: a value that has not moved for three hours,
 // three spikes within a day, or an hour out of range.
-func (d *Detector) qualityFaults(snap telemetry.Snapshot) []finding.Finding {
-	var found []finding.Finding
+func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 	for si := range d.sens {
 		ss := &d.st.Sensors[si]
 		if ss.Excluded {
@@ -837,12 +865,11 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) []finding.Finding {
 		if reason == "" {
 			continue
 		}
-		found = append(found, d.faultFinding(si, snap.Step.Add(-max(ss.Unchanged, time.Duration(ss.BadSteps)*d.cfg.Step)), snap.Step, reason))
+		d.faultFinding(si, snap.Step.Add(-max(ss.Unchanged, time.Duration(ss.BadSteps)*d.cfg.Step)), snap.Step, reason)
 	}
-	return found
 }
 
-func (d *Detector) faultFinding(si int, onset, now time.Time, why string) finding.Finding {
+func (d *Detector) faultFinding(si int, onset, now time.Time, why string) {
 	ss := &d.st.Sensors[si]
 	ss.Excluded, ss.Quiet = true, 0
 	zone := ""
@@ -852,9 +879,9 @@ func (d *Detector) faultFinding(si int, onset, now time.Time, why string) findin
 		l := d.net.Links[d.sens[si].link]
 		zone = d.net.Nodes[l.To].Zone
 	}
-	return finding.Finding{
+	d.raise(finding.Finding{
 		Kind: finding.SensorFault, Zone: zone, Onset: onset, Raised: now,
 		Candidates: []finding.Candidate{{ID: d.sens[si].s.ID, Score: 1}},
 		Evidence:   fmt.Sprintf("sensor %s: %s; left out of leak and blockage evidence", d.sens[si].s.ID, why),
-	}
+	})
 }

@@ -254,8 +254,12 @@ func (d *Detector) blockageFits(zi int, ev evidence, sg *signatures) []ranked {
 
 // accept resets a zone's tests after a finding and takes the change into
 // the baselines, so that later tests look for what is new.
-func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time) {
+func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time, f finding.Finding) {
 	zs := &d.st.Zones[zi]
+	idx := d.raise(f)
+	if f.Kind == finding.Leak || f.Kind == finding.Blockage {
+		d.watch(idx, zi, ev, now)
+	}
 	if leak != 0 {
 		zs.Base.Shift(leak)
 		zs.Offset += leak
@@ -280,27 +284,27 @@ func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time) {
 // lowers the modelled pressures by size × ubar everywhere and shows as
 // positive residuals, while a real leak takes the measured pressures down
 // with it near its place and leaves residuals size × (S_j − ubar).
-func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, why string) (finding.Finding, bool) {
+func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, why string) bool {
 	zs := &d.st.Zones[zi]
 	zone := d.zones[zi].z.ID
 	if now.Before(zs.LeakQuiet) || size <= 0 {
 		zs.Burst.Reset()
 		zs.Night.Reset()
-		return finding.Finding{}, false
+		return false
 	}
 	onset = d.refineOnset(zi, onset, size)
 	ev := d.gather(zi, onset)
 	f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(size), Candidates: []finding.Candidate{}}
 	if len(ev.sensors) == 0 {
 		f.Evidence = why + "; no pressure loggers in the zone to locate it"
-		d.accept(zi, ev, size, now)
-		return f, true
+		d.accept(zi, ev, size, now, f)
+		return true
 	}
 	sg, err := d.signatures(ev)
 	if err != nil {
 		f.Evidence = why + "; location not computed: " + err.Error()
-		d.accept(zi, ev, size, now)
-		return f, true
+		d.accept(zi, ev, size, now, f)
+		return true
 	}
 	leaks := d.leakFits(zi, ev, sg, size)
 	top, scores := rank(leaks, d.cfg.Candidates)
@@ -321,30 +325,30 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		}
 		f.Evidence = fmt.Sprintf("%s, but pressures did not fall as a leak of that size would: loggers read %s above the model, as a flow meter over-reading would make them; check the zone's flow meters",
 			why, describeResiduals(d, ev, 3))
-		d.accept(zi, ev, 0, now)
-		return f, true
+		d.accept(zi, ev, 0, now, f)
+		return true
 	}
 	for i, r := range top {
 		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
 	}
 	f.Evidence = fmt.Sprintf("%s since %s; pressure residuals (%s) best match a leak at %s",
 		why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), f.Candidates[0].ID)
-	d.accept(zi, ev, size, now)
-	return f, true
+	d.accept(zi, ev, size, now, f)
+	return true
 }
 
 // residualHypothesis explains one logger's residual change when the zone
 // balance has not moved enough to raise a leak by itself: a constriction
 // somewhere (pressure down beyond it, balance unchanged), a leak too small
 // for the balance, or the logger itself.
-func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Finding, bool) {
+func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	zi := d.sens[si].zone
 	zs := &d.st.Zones[zi]
 	ss := &d.st.Sensors[si]
 	if now.Before(zs.ResidQuiet) {
 		ss.Up.Reset()
 		ss.Down.Reset()
-		return finding.Finding{}, false
+		return false
 	}
 	ev := d.gather(zi, onset)
 	me := -1
@@ -354,7 +358,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 		}
 	}
 	if me < 0 {
-		return finding.Finding{}, false
+		return false
 	}
 	zone := d.zones[zi].z.ID
 	faultSSE := ev.wI * ev.dI * ev.dI
@@ -383,11 +387,11 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 	desc := describeResiduals(d, ev, 3)
 	switch {
 	case faultSSE <= bestB && faultSSE <= bestL:
-		f := d.faultFinding(si, onset, now, fmt.Sprintf("residual moved %+.2f m since %s while the other loggers in zone %s stayed within their noise (%s) and the zone balance did not change",
+		d.faultFinding(si, onset, now, fmt.Sprintf("residual moved %+.2f m since %s while the other loggers in zone %s stayed within their noise (%s) and the zone balance did not change",
 			ev.dr[me], onset.UTC().Format("2006-01-02 15:04"), zone, desc))
 		ss.Up.Reset()
 		ss.Down.Reset()
-		return f, true
+		return true
 	case bestB <= bestL:
 		l := bTop[0]
 		f := finding.Finding{Kind: finding.Blockage, Zone: zone, Onset: onset, Raised: now,
@@ -397,8 +401,8 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 		}
 		f.Evidence = fmt.Sprintf("pressures changed (%s) since %s while zone inflow moved only %+.2f L/s; the pattern matches extra head loss on %s (about %.0f%% open)",
 			desc, onset.UTC().Format("2006-01-02 15:04"), ev.dI, f.Candidates[0].ID, 100*f.OpenFrac)
-		d.accept(zi, ev, 0, now)
-		return f, true
+		d.accept(zi, ev, 0, now, f)
+		return true
 	default:
 		l := lTop[0]
 		size := l.size
@@ -411,8 +415,8 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) (finding.Fin
 		}
 		f.Evidence = fmt.Sprintf("pressures fell (%s) since %s in the pattern of a leak of about %.2f L/s at %s; zone imbalance %+.2f L/s",
 			desc, onset.UTC().Format("2006-01-02 15:04"), l.size, f.Candidates[0].ID, ev.dI)
-		d.accept(zi, ev, l.size, now)
-		return f, true
+		d.accept(zi, ev, l.size, now, f)
+		return true
 	}
 }
 

@@ -1,0 +1,136 @@
+package detect
+
+import (
+	"fmt"
+	"math"
+	"strings"
+	"time"
+
+	"plumbline/model/finding"
+)
+
+// refineFor is how long a raised leak or blockage keeps gathering
+// evidence for its location: a burst is raised within the hour, when a
+// single hour of pressure residuals barely rises above logger noise; a day
+// of them ranks the candidates far better.
+const refineFor = 24 * time.Hour
+
+// watch is a raised finding whose candidates are still being refined: the
+// zone loggers' hourly residuals are compared with the baseline they had
+// before the event (the live baselines relearn the new normal meanwhile).
+type watch struct {
+	Index   int // into state.Findings
+	Zone    int
+	Until   time.Time
+	Sensors []int
+	PreMean [][24]float64
+	Sigma   []float64
+	Sum     []float64
+	N       []int
+	// ScaleSum and ScaleN add up the zone's demand scale over the hours.
+	ScaleSum float64
+	ScaleN   int
+}
+
+// raise records a new finding and returns its index.
+func (d *Detector) raise(f finding.Finding) int {
+	if f.Candidates == nil {
+		f.Candidates = []finding.Candidate{}
+	}
+	d.st.Findings = append(d.st.Findings, f)
+	d.raised = append(d.raised, f)
+	return len(d.st.Findings) - 1
+}
+
+// watch starts refining finding idx from the evidence it was raised on.
+func (d *Detector) watch(idx, zi int, ev evidence, now time.Time) {
+	w := watch{Index: idx, Zone: zi, Until: now.Add(refineFor), ScaleSum: ev.scale * float64(max(ev.hours, 1)), ScaleN: max(ev.hours, 1)}
+	for k, si := range ev.sensors {
+		ss := &d.st.Sensors[si]
+		n := int(math.Round(ev.w[k] * ss.Base.Sigma() * ss.Base.Sigma()))
+		w.Sensors = append(w.Sensors, si)
+		w.PreMean = append(w.PreMean, ss.Base.Mean)
+		w.Sigma = append(w.Sigma, ss.Base.Sigma())
+		w.Sum = append(w.Sum, ev.dr[k]*float64(n))
+		w.N = append(w.N, n)
+	}
+	d.st.Watch = append(d.st.Watch, w)
+}
+
+// refine adds the hour starting at h to every watched finding and
+// re-ranks its candidates; hourly holds each sensor's mean residual of
+// the hour (NaN where none).
+func (d *Detector) refine(h time.Time, hourly []float64) {
+	keep := d.st.Watch[:0]
+	for _, w := range d.st.Watch {
+		if !h.Before(w.Until) {
+			continue
+		}
+		if sc, n := d.st.Zones[w.Zone].Scale.since(h); n > 0 {
+			w.ScaleSum += sc
+			w.ScaleN++
+		}
+		hr := d.localHour(w.Zone, h)
+		for k, si := range w.Sensors {
+			if x := hourly[si]; !math.IsNaN(x) && !d.st.Sensors[si].Excluded {
+				w.Sum[k] += x - w.PreMean[k][hr]
+				w.N[k]++
+			}
+		}
+		d.rerank(&w)
+		keep = append(keep, w)
+	}
+	d.st.Watch = keep
+}
+
+func (d *Detector) rerank(w *watch) {
+	f := &d.st.Findings[w.Index]
+	ev := evidence{zone: w.Zone, scale: w.ScaleSum / float64(w.ScaleN)}
+	for k, si := range w.Sensors {
+		if w.N[k] == 0 || d.st.Sensors[si].Excluded {
+			continue
+		}
+		ev.sensors = append(ev.sensors, si)
+		ev.dr = append(ev.dr, w.Sum[k]/float64(w.N[k]))
+		ev.w = append(ev.w, float64(w.N[k])/(w.Sigma[k]*w.Sigma[k]))
+		ev.hours = max(ev.hours, w.N[k])
+	}
+	if len(ev.sensors) == 0 {
+		return
+	}
+	sg, err := d.signatures(ev)
+	if err != nil {
+		return
+	}
+	var ids []finding.Candidate
+	switch f.Kind {
+	case finding.Leak:
+		top, scores := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), d.cfg.Candidates)
+		for i, r := range top {
+			ids = append(ids, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
+		}
+	case finding.Blockage:
+		top, scores := rank(d.blockageFits(w.Zone, ev, sg), d.cfg.Candidates)
+		for i, r := range top {
+			ids = append(ids, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(scores[i])})
+		}
+		if len(top) > 0 {
+			f.OpenFrac = round2(d.fitOpenFraction(top[0].idx, ev))
+		}
+	default:
+		return
+	}
+	if len(ids) == 0 {
+		return
+	}
+	changed := len(ids) != len(f.Candidates) || ids[0].ID != f.Candidates[0].ID
+	f.Candidates = ids
+	base := f.Evidence
+	if i := strings.Index(base, " | located from "); i >= 0 {
+		base = base[:i]
+	}
+	f.Evidence = fmt.Sprintf("%s | located from %d h of residuals (%s): best %s", base, ev.hours, describeResiduals(d, ev, 3), ids[0].ID)
+	if changed {
+		d.updated = append(d.updated, *f)
+	}
+}
