@@ -94,7 +94,7 @@ func TestChannelsEndToEnd(t *testing.T) {
 	const hookSecret = "s3cret-for-hooks"
 	const smtpPass = "mail-pass-7"
 	hook := newHookReceiver(t, []byte(hookSecret))
-	hook.fail = 1 // the first delivery is answered 503 and retried
+	hook.fail = 1 // the first delivery is answered 503 and retried (set before any request)
 	mailer := newSMTPReceiver(t, "plumbline", smtpPass)
 	prefix := fmt.Sprintf("plumbline-test/%d/alerts", time.Now().UnixNano())
 	watch := watchMQTT(t, mqttURL, "alerts-watch-"+filepath.Base(dir), prefix+"/#")
@@ -206,8 +206,11 @@ operator_url: https://ops.example.org/
 	if want := []string{"raised", "acknowledged", "cleared"}; !slices.Equal(hookNotices, want) {
 		t.Errorf("webhook notices: got %v, want %v", hookNotices, want)
 	}
-	if hook.bad != 0 {
-		t.Errorf("webhook: %d requests with a bad signature", hook.bad)
+	hook.mu.Lock()
+	bad := hook.bad
+	hook.mu.Unlock()
+	if bad != 0 {
+		t.Errorf("webhook: %d requests with a bad signature", bad)
 	}
 	if p := hook.payloads()[0]; p.Alert.SizeLPS != 6.2 || p.Alert.Candidates[0].ID != "J-117" || p.Link != "https://ops.example.org/alerts/AL-000001" || p.Alert.Levels != 2 {
 		t.Errorf("webhook raise payload: got %+v", p.Alert)

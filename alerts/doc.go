@@ -35,6 +35,26 @@
 // sent once; delivered ones are never sent again. Channels implement the
 // two-method Channel interface.
 //
+// # Adding a channel
+//
+// Write a type with Name() and Send(ctx, Notification) that honours the
+// Channel contract (no retries inside, Permanent for hopeless failures,
+// ctx respected, no secrets in errors); format with Subject, TextBody or
+// MarshalPayload so every channel says the same thing. Give it a config
+// struct under ChannelsConfig with an inline Delivery, a receiver contact
+// field if people can be reached through it, a case in contactChannels and
+// Open's policy table, and build it in BuildChannels. Test it against a
+// real receiver started in the test, and add its example to
+// TestExamples.
+//
+// # Wiring (daemon)
+//
+// DecodeConfig the `alerts:` node, Resolve against the config directory,
+// BuildChannels with the service's MQTT publisher, Open with data_dir,
+// run Manager.Run in the service's run group, feed findings to Observe,
+// mount NewAPI(m, token) with http.StripPrefix("/api/alerts", ...), export
+// Counts as plumbline_alerts{state}, and Close after Run returns.
+//
 // # Conventions
 //
 // Times are UTC; sizes are L/s; durations are Go durations in the config.

@@ -80,8 +80,11 @@ type Manager struct {
 // holding every open alert as it was before a restart.
 func Open(opts Options) (*Manager, error) {
 	cfg := opts.Config
-	if cfg.HourlyCap == 0 || cfg.ClearAfter == 0 {
-		cfg.applyDefaults()
+	// A Config built in code gets the same defaults and checks as a decoded
+	// one (which makes this idempotent for those).
+	cfg.applyDefaults()
+	if errs := cfg.validate(map[string]int{}); len(errs) > 0 {
+		return nil, errs
 	}
 	m := &Manager{
 		cfg:       cfg,
@@ -491,9 +494,10 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 	now = now.UTC()
 	b := newBatch()
 	var errs []error
+	gone := "no evidence for " + m.cfg.ClearAfter.String()
 	for _, id := range m.openIDs() {
 		a := m.open[id]
-		changed, err := m.tickAlert(b, a, now)
+		changed, err := m.tickAlert(b, a, now, gone)
 		if err != nil {
 			errs = append(errs, err)
 		}
@@ -517,9 +521,8 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 }
 
 // tickAlert applies the time-driven rules to one alert.
-func (m *Manager) tickAlert(b *batch, a *Alert, now time.Time) (bool, error) {
+func (m *Manager) tickAlert(b *batch, a *Alert, now time.Time, gone string) (bool, error) {
 	quiet := !now.Before(a.LastEvidence.Add(m.cfg.ClearAfter))
-	gone := "no evidence for " + m.cfg.ClearAfter.String()
 	switch a.State {
 	case Shelved:
 		if quiet {

@@ -149,16 +149,20 @@ func TestWebhookFailures(t *testing.T) {
 		t.Fatal(err)
 	}
 	n := Notification{ID: 7, Notice: NoticeRaised, Alert: Alert{ID: "AL-000009", Zone: "z", Kind: finding.Leak}}
+	hook.mu.Lock()
 	hook.status = 400
+	hook.mu.Unlock()
 	if err := wh.Send(context.Background(), n); err == nil || !IsPermanent(err) {
 		t.Errorf("400: got %v, want a permanent error", err)
 	}
+	hook.mu.Lock()
 	hook.status = 503
+	hook.mu.Unlock()
 	if err := wh.Send(context.Background(), n); err == nil || IsPermanent(err) {
 		t.Errorf("503: got %v, want a retryable error", err)
 	}
 	// The dispatcher gives up after the configured attempts and logs it.
-	m, err := Open(Options{Config: Config{Channels: ChannelsConfig{Webhook: &WebhookConfig{URL: hook.srv.URL, Delivery: Delivery{Attempts: 3, Backoff: time.Millisecond}}}, Receivers: []Receiver{{ID: "a", Webhook: true}}}, DataDir: t.TempDir(), Channels: []Channel{wh}, Logger: zerolog.Nop(), TickInterval: -1})
+	m, err := Open(Options{Config: Config{Channels: ChannelsConfig{Webhook: &WebhookConfig{URL: hook.srv.URL, SecretFile: "unused", Delivery: Delivery{Attempts: 3, Backoff: time.Millisecond}}}, Receivers: []Receiver{{ID: "a", Webhook: true}}}, DataDir: t.TempDir(), Channels: []Channel{wh}, Logger: zerolog.Nop(), TickInterval: -1})
 	if err != nil {
 		t.Fatal(err)
 	}
