@@ -46,13 +46,6 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 		return fmt.Errorf("sparse: factorize: %d off-diagonal values for %d pattern entries: %w", len(offdiag), s.nIn, ErrShape)
 	}
 	vals := f.values
-	clear(vals)
-	for i, p := range s.diagPos {
-		vals[p] += diag[i]
-	}
-	for k, p := range s.offPos {
-		vals[p] += offdiag[k]
-	}
 	ns := len(s.superStart) - 1
 	head, link, next, relpos := f.head, f.link, f.next, f.relpos
 	for k := range head {
@@ -63,6 +56,16 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 		rows := s.rowIdx[s.rowPtr[J]:s.rowPtr[J+1]]
 		r := len(rows)
 		LJ := vals[s.valPtr[J]:s.valPtr[J+1]]
+		// Assemble A's entries of J's columns into the cleared block.
+		clear(LJ)
+		for t := 0; t < l0-f0; t++ {
+			LJ[t*r+t] = diag[s.perm[f0+t]]
+		}
+		src, dst := s.asmSrc[s.asmPtr[J]:s.asmPtr[J+1]], s.asmDst[s.asmPtr[J]:s.asmPtr[J+1]]
+		dst = dst[:len(src)]
+		for q, e := range src {
+			LJ[dst[q]] += offdiag[e]
+		}
 		for idx, row := range rows {
 			relpos[row] = idx
 		}

@@ -89,8 +89,12 @@ type Symbolic struct {
 	maxRows   int
 	maxUpdate int // largest dense update block, (r-k)² over supernodes
 
-	diagPos []int // original i -> position of L(i,i) block entry in values
-	offPos  []int // input entry k -> position in values
+	// Assembly of supernode s: for q in asmPtr[s]..asmPtr[s+1]-1, input
+	// entry asmSrc[q] adds to position asmDst[q] of the block. The diagonal
+	// of column c is diag[perm[c]].
+	asmPtr []int
+	asmSrc []int
+	asmDst []int
 }
 
 // N returns the order of the matrix.

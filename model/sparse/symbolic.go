@@ -53,19 +53,33 @@ func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int) *Symbolic {
 	}
 	s.superStructure(pptr, padj)
 
-	// Entry map: every input entry goes to the lower triangle.
-	s.diagPos = make([]int, n)
-	for i := 0; i < n; i++ {
-		k := iperm[i]
-		s.diagPos[i] = s.position(k, k)
-	}
-	s.offPos = make([]int, len(rows))
+	// Entry map: every input entry goes to the lower triangle, into the
+	// block of the supernode of its column; the entries are grouped by
+	// supernode so that Factorize assembles each block just before use.
+	ns = len(s.superStart) - 1
+	s.asmPtr = make([]int, ns+1)
+	sn := make([]int, len(rows))
+	pos := make([]int, len(rows))
 	for e := range rows {
 		a, b := iperm[rows[e]], iperm[cols[e]]
 		if a < b {
 			a, b = b, a
 		}
-		s.offPos[e] = s.position(a, b)
+		sn[e] = s.colSuper[b]
+		pos[e] = s.position(a, b) - s.valPtr[sn[e]]
+		s.asmPtr[sn[e]+1]++
+	}
+	for k := 0; k < ns; k++ {
+		s.asmPtr[k+1] += s.asmPtr[k]
+	}
+	s.asmSrc = make([]int, len(rows))
+	s.asmDst = make([]int, len(rows))
+	fill := slices.Clone(s.asmPtr[:ns])
+	for e := range rows {
+		q := fill[sn[e]]
+		s.asmSrc[q] = e
+		s.asmDst[q] = pos[e]
+		fill[sn[e]]++
 	}
 	return s
 }
