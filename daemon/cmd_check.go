@@ -70,6 +70,18 @@ func runCheck(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	netPath := fs.String("network", "", "network file (GeoJSON) to check")
 	cfgPath := fs.String("config", "", "service configuration (YAML) to check, with the network it names")
 	asJSON := fs.Bool("json", false, "print the result as JSON on stdout")
+	flagsUsage := fs.Usage
+	fs.Usage = func() {
+		flagsUsage()
+		fmt.Fprint(stderr, `
+Every problem, error or warning, is printed on stdout, one per line:
+  file:line: feature or sensor or zone: property: message
+then, when there is no error, a summary of what the files hold. With
+--json, stdout holds {"ok", "problems": [{"place", "feature", "property",
+"message", "severity"}], "summary"} instead. The exit status is 1 when
+there is an error; warnings alone do not fail.
+`)
+	}
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}

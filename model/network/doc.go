@@ -46,8 +46,11 @@
 // names its file, line, feature index and id, property and message; its
 // String form is "file:line: feature ID: property: message". Errors
 // reject the whole file (Read returns a *ValidationError listing them
-// all; Parse returns a nil network); warnings (odd but legal values such
-// as a Hazen-Williams C outside 40-160) do not. Validate runs the same
+// all; Parse returns a nil network); warnings (odd but legal: a
+// Hazen-Williams C outside 40-160, a diameter that looks like metres, a
+// pipe shorter than the distance between its nodes, a line that ends
+// away from its nodes, a part of the network cut off by closed links, a
+// misspelt property) do not. Validate runs the same
 // value and topology checks on a Network built in code. Nothing here
 // panics on bad input.
 package network

@@ -335,6 +335,9 @@ func (p *parser) parse() *Network {
 		case "type", "bbox":
 		case "network":
 			p.settings(n, t.members[key], t.lines[key])
+		case "crs":
+			p.fileWarning(t.lines[key], "crs", "RFC 7946 has no crs member: coordinates are read as WGS84 longitude, latitude")
+			fallthrough
 		default:
 			if n.Extra == nil {
 				n.Extra = map[string]json.RawMessage{}

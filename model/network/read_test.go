@@ -453,7 +453,7 @@ func TestValidateBuiltNetwork(t *testing.T) {
 }
 
 func TestWarnings(t *testing.T) {
-	src := `{"type": "FeatureCollection", "network": {"headloss": "hazen-williams", "pattern_stepp": "1h"}, "features": [
+	src := `{"type": "FeatureCollection", "network": {"headloss": "hazen-williams", "pattern_stepp": "1h"}, "crs": {"type": "name"}, "features": [
 {"type": "Feature", "geometry": null, "properties": {"id": "R", "kind": "reservoir", "head_m": 50}},
 {"type": "Feature", "geometry": null, "properties": {"id": "J", "kind": "junction", "elevation_m": 10, "head_m": 3, "demnd_lps": 2}},
 {"type": "Feature", "geometry": null, "properties": {"id": "P", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 0.3, "roughness": 200, "length_m": 10}},
@@ -465,6 +465,7 @@ func TestWarnings(t *testing.T) {
 	}
 	want := []string{
 		"w.geojson:1: network.pattern_stepp: warning: unknown setting, ignored (did you mean pattern_step?)",
+		"w.geojson:1: crs: warning: RFC 7946 has no crs member",
 		"w.geojson:3: feature J: demnd_lps: warning: unknown property, kept as is (did you mean demand_lps?)",
 		"w.geojson:3: feature J: head_m: warning: not a property of a junction",
 		"w.geojson:4: feature P: diameter_mm: warning: 0.3 mm is very small",
