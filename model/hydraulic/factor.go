@@ -31,6 +31,9 @@ type sparseFactor struct{ f *sparse.Factor }
 
 func (s sparseFactor) Factorize(diag, off []float64) error {
 	err := s.f.Factorize(diag, off)
+	if err == nil {
+		return nil
+	}
 	var npd *sparse.NotPositiveDefiniteError
 	if errors.As(err, &npd) {
 		return &pivotError{row: npd.Row, pivot: npd.Pivot}

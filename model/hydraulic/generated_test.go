@@ -74,3 +74,27 @@ func TestSparseAgainstDense(t *testing.T) {
 		}
 	}
 }
+
+// TestNoAllocationPerIteration: a cold solve (many iterations) and a warm
+// solve (few) allocate the same: only the Solution, never inside the
+// Newton loop.
+func TestNoAllocationPerIteration(t *testing.T) {
+	net := grid(20, 20, true, network.HazenWilliams)
+	s, err := NewSolver(net, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	base, err := s.Solve(nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	warm, _ := s.Solve(nil, base)
+	if base.Iterations <= warm.Iterations {
+		t.Fatalf("cold %d iterations, warm %d: need a difference to measure", base.Iterations, warm.Iterations)
+	}
+	cold := testing.AllocsPerRun(5, func() { s.Solve(nil, nil) })
+	hot := testing.AllocsPerRun(5, func() { s.Solve(nil, base) })
+	if cold != hot {
+		t.Errorf("allocations: cold solve (%d iterations) %v, warm solve (%d iterations) %v: the iteration loop allocates", base.Iterations, cold, warm.Iterations, hot)
+	}
+}

@@ -86,11 +86,14 @@ func grid(nx, ny int, two bool, formula network.HeadlossFormula) *network.Networ
 		seed ^= seed << 17
 		return float64(seed%1000000) / 1e6
 	}
+	// Large grids get smaller demands per junction (a denser street
+	// grid), so heads stay in the service range whatever the size.
+	scale := math.Min(1, 1000/float64(nx*ny))
 	for j := 0; j < ny; j++ {
 		for i := 0; i < nx; i++ {
 			nodes = append(nodes, network.Node{
 				ID: fmt.Sprintf("J%d_%d", i, j), Kind: network.Junction,
-				Elevation: 10 + 5*rnd(), Demand: 0.05 + 0.5*rnd(),
+				Elevation: 10 + 5*rnd(), Demand: scale * (0.05 + 0.5*rnd()),
 			})
 		}
 	}
@@ -114,7 +117,7 @@ func grid(nx, ny int, two bool, formula network.HeadlossFormula) *network.Networ
 	nj := len(nodes)
 	// Demands scale with the grid so the mains stay hydraulically sane:
 	// the feed pipes are large.
-	feedD := 300 + 200*math.Sqrt(float64(nj)/100)
+	feedD := 300 + 200*math.Sqrt(math.Min(float64(nj), 1000)/100)
 	nodes = append(nodes, network.Node{ID: "R1", Kind: network.Reservoir, Head: 80, Elevation: 80})
 	links = append(links, network.Link{ID: "F1", Kind: network.Pipe, From: nj, To: id(0, 0), Length: 50, Diameter: feedD, Roughness: rough})
 	if two {

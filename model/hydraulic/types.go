@@ -13,7 +13,8 @@ type Options struct {
 	// MaxIterations caps the Newton iterations of one Solve; default 200.
 	MaxIterations int
 	// FlowTolerance is the largest link flow change (L/s) of the last
-	// iteration for convergence; default 1e-4 L/s.
+	// iteration for convergence; default 1e-3 L/s (Newton converges
+	// quadratically, so the flows returned are far closer than that).
 	FlowTolerance float64
 	// ImbalanceTolerance is the largest junction continuity residual
 	// (L/s) of the solution for convergence; default 1e-6 L/s.
@@ -40,7 +41,7 @@ func (o Options) withDefaults() Options {
 		o.MaxIterations = 200
 	}
 	if o.FlowTolerance <= 0 {
-		o.FlowTolerance = 1e-4
+		o.FlowTolerance = 1e-3
 	}
 	if o.ImbalanceTolerance <= 0 {
 		o.ImbalanceTolerance = 1e-6
