@@ -264,6 +264,7 @@ sensors:
 
 func TestWarnings(t *testing.T) {
 	src := `network: ../network/two-loop.geojson
+step: 2h
 mqtt:
   username: ops
 sensors:
@@ -281,11 +282,12 @@ zones:
 		t.Fatalf("warnings only, want a Config; got %v", probs)
 	}
 	want := []string{
-		"warn.yaml:3: mqtt: username: warning: not used: without url",
-		"warn.yaml:10: zone west: inlets: warning: sensor F-2 is on link P-2, which does not cross the zone boundary",
-		"warn.yaml:10: zone west: inlets: warning: sensor F-3 on link P-3 measures flow out of zone west",
-		"warn.yaml:12: zone east: outlets: warning: sensor F-3 on link P-3 measures flow into zone east",
-		"warn.yaml:11: zone east: inlets: warning: no inlet flow sensors",
+		"warn.yaml:2: step: warning: 2h0m0s is longer than the network's pattern step 1h0m0s",
+		"warn.yaml:4: mqtt: username: warning: not used: without url",
+		"warn.yaml:11: zone west: inlets: warning: sensor F-2 is on link P-2, which does not cross the zone boundary",
+		"warn.yaml:11: zone west: inlets: warning: sensor F-3 on link P-3 measures flow out of zone west",
+		"warn.yaml:13: zone east: outlets: warning: sensor F-3 on link P-3 measures flow into zone east",
+		"warn.yaml:12: zone east: inlets: warning: no inlet flow sensors",
 	}
 	if len(probs) != len(want) {
 		t.Errorf("got %d problems, want %d: %v", len(probs), len(want), probs)

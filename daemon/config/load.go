@@ -425,6 +425,9 @@ func (l *loader) load(data []byte) *Config {
 	c := &Config{File: l.file, Decode: map[string]Decode{}}
 	l.network(c, &raw, &doc)
 	c.Step = l.duration(raw.Step, DefaultStep, &doc, "", "step", "step")
+	if c.Network != nil && c.Step > c.Network.PatternStep {
+		l.warnf(l.file, lineOf(&doc, "step"), "", "step", "%v is longer than the network's pattern step %v: demand patterns are skipped over", c.Step, c.Network.PatternStep)
+	}
 	l.mqtt(c, &raw, &doc)
 	l.sensors(c, &raw, &doc)
 	l.zones(c, &raw, &doc)

@@ -486,6 +486,28 @@ func TestWarnings(t *testing.T) {
 	}
 }
 
+func TestAboveSourcesWarning(t *testing.T) {
+	// J2 at 60 m is above the only head (50 m); J1 at 40 m is not. With a
+	// pump in the part, no warning.
+	nodes := []Node{
+		{ID: "R", Kind: Reservoir, Head: 50, Elevation: 50},
+		{ID: "J1", Kind: Junction, Elevation: 40},
+		{ID: "J2", Kind: Junction, Elevation: 60},
+	}
+	pipe := func(id string, a, b int) Link {
+		return Link{ID: id, Kind: Pipe, From: a, To: b, Length: 100, Diameter: 100, Roughness: 100}
+	}
+	probs := Validate(New(nodes, []Link{pipe("P1", 0, 1), pipe("P2", 1, 2)}))
+	if len(probs) != 1 || probs[0].Feature != "J2" || probs[0].Severity != Warning ||
+		!strings.Contains(probs[0].Message, "60 m is above every reservoir and tank head") {
+		t.Errorf("got %v, want one warning on J2", probs)
+	}
+	pumpLink := Link{ID: "U", Kind: Pump, From: 0, To: 1, Curve: [][2]float64{{10, 30}}, Speed: 1}
+	if probs := Validate(New(nodes, []Link{pumpLink, pipe("P2", 1, 2)})); len(probs) != 0 {
+		t.Errorf("with a pump: got %v, want none", probs)
+	}
+}
+
 func TestPlaceWarnings(t *testing.T) {
 	// J1 and J2 are 0.01° of latitude apart: R·π/180·0.01 = 1111.95 m on
 	// the IUGG mean sphere (geometry of the sphere).

@@ -509,6 +509,7 @@ func (v *validator) topology() {
 		p := m[r]
 		v.nodeP(Error, p.first, "", "no reservoir or tank feeds the part of the network holding this junction (%s)", countJunctions(p.count))
 	}
+	v.aboveSources(all, degree)
 	srcOpen := sourced(open)
 	roots, m = parts(open, srcOpen)
 	for _, r := range roots {
@@ -517,6 +518,43 @@ func (v *validator) topology() {
 			continue // already an error
 		}
 		v.nodeP(Warning, p.first, "", "closed links cut off the part of the network holding this junction (%s) from every reservoir and tank", countJunctions(p.count))
+	}
+}
+
+// aboveSources warns about junctions higher than every fixed head of
+// their connected part when that part has no pump: at no flow their head
+// equals at most the highest source head (energy conservation: friction
+// only lowers head), so their pressure is negative whatever the demand.
+func (v *validator) aboveSources(d dsu, degree []int) {
+	n := v.n
+	top := map[int]float64{}
+	pumped := map[int]bool{}
+	for i := range n.Nodes {
+		if nd := &n.Nodes[i]; nd.IsFixedHead() {
+			r := d.find(i)
+			h := nd.FixedHead()
+			if nd.Kind == Tank && !math.IsInf(nd.MaxLevel, 1) {
+				h = nd.Elevation + nd.MaxLevel
+			}
+			if old, ok := top[r]; !ok || h > old {
+				top[r] = h
+			}
+		}
+	}
+	for i := range n.Links {
+		if l := &n.Links[i]; l.Kind == Pump && l.From >= 0 && l.From < len(n.Nodes) {
+			pumped[d.find(l.From)] = true
+		}
+	}
+	for i := range n.Nodes {
+		nd := &n.Nodes[i]
+		if nd.Kind != Junction || degree[i] == 0 {
+			continue
+		}
+		r := d.find(i)
+		if h, ok := top[r]; ok && !pumped[r] && finite(nd.Elevation) && nd.Elevation > h {
+			v.nodeP(Warning, i, "elevation_m", "%g m is above every reservoir and tank head of its part of the network (highest %g m) and no pump serves it: the pressure here is negative", nd.Elevation, h)
+		}
 	}
 }
 
