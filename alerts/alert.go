@@ -124,10 +124,13 @@ type Notice string
 
 // Notices, in the order an alert usually meets them.
 const (
-	NoticeRaised       Notice = "raised"
-	NoticeUpdated      Notice = "updated"
-	NoticeEscalated    Notice = "escalated"
-	NoticeRepeated     Notice = "repeated"
+	NoticeRaised    Notice = "raised"
+	NoticeUpdated   Notice = "updated"
+	NoticeEscalated Notice = "escalated"
+	NoticeRepeated  Notice = "repeated"
+	// NoticeHandover tells a person who came on call (a rota handover) of
+	// an unacknowledged alert at their level they had not heard of.
+	NoticeHandover     Notice = "handover"
 	NoticeAcknowledged Notice = "acknowledged"
 	NoticeShelved      Notice = "shelved"
 	NoticeUnshelved    Notice = "unshelved"

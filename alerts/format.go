@@ -34,6 +34,8 @@ func noticeLead(n Notification) string {
 		return fmt.Sprintf("ESCALATED to level %d of %d, not acknowledged", a.Level+1, n.Levels)
 	case NoticeRepeated:
 		return "REMINDER, not acknowledged"
+	case NoticeHandover:
+		return "HANDED OVER to you, not acknowledged"
 	case NoticeAcknowledged:
 		return "ACKNOWLEDGED by " + n.Actor
 	case NoticeShelved:

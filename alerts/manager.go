@@ -557,7 +557,7 @@ func (m *Manager) tickAlert(b *batch, a *Alert, now time.Time, gone string) (boo
 		}
 		if l := r.Levels[a.Level]; a.Level+1 < len(r.Levels) && l.AckTimeout > 0 && !now.Before(a.LevelSince.Add(l.AckTimeout)) {
 			m.enterLevel(a, a.Level+1, now)
-			b.audit = append(b.audit, AuditRecord{Time: now, Alert: a.ID, Actor: systemActor, Event: "escalate", From: a.State, To: a.State, Comment: fmt.Sprintf("not acknowledged within %s: level %d", l.AckTimeout, a.Level+1)})
+			b.audit = append(b.audit, AuditRecord{Time: now, Alert: a.ID, Actor: systemActor, Event: Escalate, From: a.State, To: a.State, Comment: fmt.Sprintf("not acknowledged within %s: level %d", l.AckTimeout, a.Level+1)})
 			m.notifyLevel(b, a, NoticeEscalated, now, "", "")
 			m.feed(b, a, NoticeEscalated, now)
 			return true, nil
@@ -567,6 +567,15 @@ func (m *Manager) tickAlert(b *batch, a *Alert, now time.Time, gone string) (boo
 			m.notifyLevel(b, a, NoticeRepeated, now, "", "")
 			return true, nil
 		}
+		// After a rota handover, whoever came on call hears of it once.
+		changed := false
+		for _, p := range m.peopleOf(r.Levels[a.Level].Notify, now) {
+			if !slices.Contains(a.Notified, p) {
+				m.notifyPerson(b, p, a, NoticeHandover, now, "", "")
+				changed = true
+			}
+		}
+		return changed, nil
 	}
 	return false, nil
 }

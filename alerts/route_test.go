@@ -88,3 +88,41 @@ func TestClusterByDistance(t *testing.T) {
 		t.Error("no locator: distance must not be used")
 	}
 }
+
+// TestOnCallDaylightSaving: shifts follow the local wall clock across the
+// change to summer time. In the CET zone of the IANA tz database, clocks
+// go from 02:00 CET (UTC+1) to 03:00 CEST (UTC+2) on the last Sunday of
+// March (29 March 2026), so the 07:00 handover that morning is at 05:00 UTC,
+// not 06:00 UTC.
+func TestOnCallDaylightSaving(t *testing.T) {
+	cfg, err := ParseConfig([]byte(`
+receivers: [{id: day}, {id: night}]
+rotas:
+  - id: r
+    timezone: CET
+    shifts:
+      - {start: "07:00", end: "19:00", people: [day]}
+      - {start: "19:00", end: "07:00", people: [night]}
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := &cfg.Rotas[0]
+	for _, c := range []struct {
+		utc, want string
+	}{
+		{"2026-03-28T05:59:00Z", "night"}, // Sat 06:59 CET
+		{"2026-03-28T06:00:00Z", "day"},   // Sat 07:00 CET
+		{"2026-03-28T17:59:00Z", "day"},   // Sat 18:59 CET
+		{"2026-03-28T18:00:00Z", "night"}, // Sat 19:00 CET
+		{"2026-03-29T04:59:00Z", "night"}, // Sun 06:59 CEST
+		{"2026-03-29T05:00:00Z", "day"},   // Sun 07:00 CEST
+		{"2026-03-29T16:59:00Z", "day"},   // Sun 18:59 CEST
+		{"2026-03-29T17:00:00Z", "night"}, // Sun 19:00 CEST
+	} {
+		at, _ := time.Parse(time.RFC3339, c.utc)
+		if got := r.OnCall(at); !slices.Equal(got, []string{c.want}) {
+			t.Errorf("OnCall(%s) = %v, want [%s]", c.utc, got, c.want)
+		}
+	}
+}

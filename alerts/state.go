@@ -46,6 +46,9 @@ const (
 	ShelfExpired Event = "shelf-expired"
 	// ClearByHand: an operator closed the alert with a reason.
 	ClearByHand Event = "clear"
+	// Escalate is recorded in the audit log when an alert moves to the next
+	// escalation level; it is not a state transition (Transition refuses it).
+	Escalate Event = "escalate"
 )
 
 // ErrTransition is the sentinel wrapped by every refused transition.

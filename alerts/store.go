@@ -21,6 +21,9 @@ var (
 	bucketPeople     = []byte("people")
 )
 
+// deliveryLogLimit is how many delivery records are kept (the oldest go).
+const deliveryLogLimit = 100000
+
 // store is the durable state: alerts, per-person cap windows, the audit
 // log, the outbox of notifications not yet delivered and the delivery log.
 // bbolt fsyncs each transaction before Update returns.
@@ -242,7 +245,14 @@ func (s *store) done(n Notification, rec DeliveryRecord) error {
 		db := tx.Bucket(bucketDeliveries)
 		seq, _ := db.NextSequence()
 		v, _ := json.Marshal(rec)
-		return db.Put(u64(seq), v)
+		if err := db.Put(u64(seq), v); err != nil {
+			return err
+		}
+		// Keep the newest deliveryLogLimit records.
+		if seq > deliveryLogLimit {
+			return db.Delete(u64(seq - deliveryLogLimit))
+		}
+		return nil
 	})
 }
 
