@@ -35,7 +35,9 @@
 //     relative speed s by the affinity laws H = s²A − B s^(2−C) Q^C; below
 //     1% of the zero-head flow the curve is continued by its tangent.
 //     A pump whose flow would reverse is shut (CheckShut) and reopens when
-//     the head across it falls below its shutoff head.
+//     the head across it falls below its shutoff head. A network Speed of
+//     0 (the zero value) means nominal speed; Conditions.PumpSpeed 0 stops
+//     the pump (Closed).
 //   - Leaks: FAVAD (May 1994) q = C p^N for p > 0, smoothed below 0.01 m
 //     for N < 1 (see LeakFlow); the network's and the Conditions' leaks add.
 //   - Valves: isolating (open or closed, minor loss when open), throttle
@@ -49,15 +51,18 @@
 //
 // # Status logic
 //
-// Statuses are re-examined only after an iteration whose largest flow
-// change is below Options.StatusFlowChange, each test with a margin (the
-// flow tolerance or Options.HeadHysteresis). A link that changes status
+// Statuses are re-examined after an iteration whose largest flow change
+// is below Options.StatusFlowChange (and every tenth iteration while the
+// flows do not settle), each test with a margin (the flow tolerance or
+// Options.HeadHysteresis). A link that changes status
 // more than Options.MaxStatusChanges times in one Solve is frozen; if its
 // test still disagrees with its state at the end, Solve returns a
 // *NotConvergedError naming it. A Solve converges when the largest flow
 // change of the last iteration is at most Options.FlowTolerance, the
 // largest junction continuity residual at most Options.ImbalanceTolerance,
-// and no status changed.
+// and no status changed. A junction whose pressure runs beyond ±10 km
+// of water (fed only through links that cannot carry its demand) makes
+// the solve fail with the junction named in NotConvergedError.Runaway.
 //
 // # Sensitivities
 //

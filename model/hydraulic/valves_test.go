@@ -70,6 +70,22 @@ func TestPressureReducingValve(t *testing.T) {
 	stateOf(t, sol, 1, CheckShut)
 	near(t, "shut PRV flow", sol.Flow[1], 0, 1e-6)
 	near(t, "inlet head (no flow)", sol.Head[1], 100, 1e-6)
+	// Closed by its status (operator): no flow even though the
+	// downstream needs it, downstream fed from R2 alone.
+	net := mk(40, 120)
+	s, err := NewSolver(net, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	st := make([]network.Status, len(net.Links))
+	st[1] = network.Closed
+	sol, err = s.Solve(&Conditions{Status: st, Demand: []float64{0, 0, 10, 5, 0}}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	stateOf(t, sol, 1, Closed)
+	near(t, "closed PRV flow", sol.Flow[1], 0, 1e-6)
+	near(t, "R2 feeds B and C", sol.Flow[3], 15, 1e-6)
 }
 
 func TestPressureSustainingValve(t *testing.T) {
