@@ -252,14 +252,30 @@ func (m *Manager) Observe(ctx context.Context, f finding.Finding) (Alert, error)
 		changed = true
 	}
 	if sev.rank() > a.Severity.rank() {
+		// Worse than before: tell those who know, and if the new severity
+		// takes another route, announce it to that route's first level.
 		a.Severity = sev
+		before := slices.Clone(a.Notified)
+		rerouted := false
 		if r := m.cfg.routeFor(a.Zone, a.Kind, a.Severity); r != nil && r.Name != a.Route {
 			a.Route = r.Name
 			m.enterLevel(a, 0, now)
+			rerouted = true
 		}
 		switch a.State {
 		case Unacknowledged:
-			m.notifyLevel(b, a, NoticeUpdated, now, "", "")
+			if !rerouted {
+				m.notifyLevel(b, a, NoticeUpdated, now, "", "")
+				break
+			}
+			m.notifyNotified(b, a, NoticeUpdated, now, "", "")
+			if r := m.cfg.routeNamed(a.Route); r != nil {
+				for _, p := range m.peopleOf(r.Levels[0].Notify, now) {
+					if !slices.Contains(before, p) {
+						m.notifyPerson(b, p, a, NoticeRaised, now, "", "")
+					}
+				}
+			}
 		case Acknowledged:
 			m.notifyNotified(b, a, NoticeUpdated, now, "", "")
 		}
