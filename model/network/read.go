@@ -281,8 +281,8 @@ func tokenKind(tok json.Token) string {
 func jsonKind(raw json.RawMessage) string {
 	raw = bytes.TrimSpace(raw)
 	q := string(raw)
-	if len(q) > 40 {
-		q = q[:37] + "..."
+	if r := []rune(q); len(r) > 40 {
+		q = string(r[:37]) + "..."
 	}
 	if len(raw) == 0 {
 		return "nothing"
