@@ -124,19 +124,29 @@ type Notice string
 
 // Notices, in the order an alert usually meets them.
 const (
-	NoticeRaised    Notice = "raised"
-	NoticeUpdated   Notice = "updated"
+	// NoticeRaised: a new alert (or one re-announced after it returned).
+	NoticeRaised Notice = "raised"
+	// NoticeUpdated: the alert became more severe, or (feeds) its data changed.
+	NoticeUpdated Notice = "updated"
+	// NoticeEscalated: not acknowledged in time; the next level is told.
 	NoticeEscalated Notice = "escalated"
-	NoticeRepeated  Notice = "repeated"
+	// NoticeRepeated: still not acknowledged; the current level is reminded.
+	NoticeRepeated Notice = "repeated"
 	// NoticeHandover tells a person who came on call (a rota handover) of
 	// an unacknowledged alert at their level they had not heard of.
-	NoticeHandover     Notice = "handover"
+	NoticeHandover Notice = "handover"
+	// NoticeAcknowledged: an operator acknowledged the alert.
 	NoticeAcknowledged Notice = "acknowledged"
-	NoticeShelved      Notice = "shelved"
-	NoticeUnshelved    Notice = "unshelved"
-	NoticeReturned     Notice = "returned-to-normal"
-	NoticeCleared      Notice = "cleared"
-	NoticeSummary      Notice = "summary"
+	// NoticeShelved: an operator shelved the alert for a time.
+	NoticeShelved Notice = "shelved"
+	// NoticeUnshelved: the shelf time ran out with the evidence still there.
+	NoticeUnshelved Notice = "unshelved"
+	// NoticeReturned: the evidence is gone but nobody acknowledged the alert.
+	NoticeReturned Notice = "returned-to-normal"
+	// NoticeCleared: the alert is closed.
+	NoticeCleared Notice = "cleared"
+	// NoticeSummary: what the hourly cap held back, in one message.
+	NoticeSummary Notice = "summary"
 )
 
 // Recipient is the person a notification is for (nil for a feed).

@@ -29,7 +29,10 @@ type Channel interface {
 // permanentError marks a delivery failure that retrying cannot fix.
 type permanentError struct{ err error }
 
+// Error returns the wrapped error's text.
 func (e permanentError) Error() string { return e.err.Error() }
+
+// Unwrap returns the wrapped error.
 func (e permanentError) Unwrap() error { return e.err }
 
 // Permanent wraps err so the dispatcher gives up at once (a 4xx answer, a

@@ -231,6 +231,7 @@ type ConfigError struct {
 	Msg  string
 }
 
+// Error formats the problem as "alerts: line N: path: message".
 func (e ConfigError) Error() string {
 	var b strings.Builder
 	b.WriteString("alerts")
@@ -246,6 +247,7 @@ func (e ConfigError) Error() string {
 // ConfigErrors is every problem found, in line order.
 type ConfigErrors []ConfigError
 
+// Error lists every problem, one a line.
 func (es ConfigErrors) Error() string {
 	s := make([]string, len(es))
 	for i, e := range es {
