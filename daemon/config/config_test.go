@@ -186,12 +186,12 @@ func TestLoadGood(t *testing.T) {
 		t.Fatalf("got %d sensors, want 6", len(c.Sensors))
 	}
 	want := map[string]telemetry.Sensor{
-		"F-in":     {ID: "F-in", Quantity: telemetry.Flow, At: "P-1", Topic: "larkfield/flow/F-in", Unit: "m3/h", Accuracy: 0.5, Zone: "west"},
-		"F-east-1": {ID: "F-east-1", Quantity: telemetry.Flow, At: "P-3", Topic: "larkfield/flow/F-east-1", Unit: "L/s", Accuracy: 0.05, Zone: "east"},
-		"F-east-2": {ID: "F-east-2", Quantity: telemetry.Flow, At: "P-8", Topic: "larkfield/flow/F-east-2", Unit: "L/s", Accuracy: 0.05, Zone: "east"},
-		"PT-3":     {ID: "PT-3", Quantity: telemetry.Pressure, At: "J-3", Topic: "larkfield/pressure/{sensor}", Unit: "bar", Accuracy: 0.02, Zone: "east"},
-		"PT-7":     {ID: "PT-7", Quantity: telemetry.Pressure, At: "J-7", Topic: "larkfield/pressure/{sensor}", Unit: "kPa", Accuracy: 2, Zone: "west", Min: 0, Max: 120},
-		"H-R1":     {ID: "H-R1", Quantity: telemetry.Head, At: "R-1", Topic: "larkfield/head/R-1", Unit: "m", Accuracy: 0.05, Zone: "west"},
+		"F-in":     {ID: "F-in", Quantity: telemetry.Flow, At: "P-1", Topic: "quennick/flow/F-in", Unit: "m3/h", Accuracy: 0.5, Zone: "west"},
+		"F-east-1": {ID: "F-east-1", Quantity: telemetry.Flow, At: "P-3", Topic: "quennick/flow/F-east-1", Unit: "L/s", Accuracy: 0.05, Zone: "east"},
+		"F-east-2": {ID: "F-east-2", Quantity: telemetry.Flow, At: "P-8", Topic: "quennick/flow/F-east-2", Unit: "L/s", Accuracy: 0.05, Zone: "east"},
+		"PT-3":     {ID: "PT-3", Quantity: telemetry.Pressure, At: "J-3", Topic: "quennick/pressure/{sensor}", Unit: "bar", Accuracy: 0.02, Zone: "east"},
+		"PT-7":     {ID: "PT-7", Quantity: telemetry.Pressure, At: "J-7", Topic: "quennick/pressure/{sensor}", Unit: "kPa", Accuracy: 2, Zone: "west", Min: 0, Max: 120},
+		"H-R1":     {ID: "H-R1", Quantity: telemetry.Head, At: "R-1", Topic: "quennick/head/R-1", Unit: "m", Accuracy: 0.05, Zone: "west"},
 	}
 	for _, s := range c.Sensors {
 		if s != want[s.ID] {

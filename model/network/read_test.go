@@ -232,7 +232,7 @@ func TestReadTwoLoop(t *testing.T) {
 	if got := n.Nodes[r]; got.Kind != Reservoir || got.Head != 92 || got.Elevation != 92 {
 		t.Errorf("R-1: got kind %v head %g elevation %g, want reservoir 92 92", got.Kind, got.Head, got.Elevation)
 	}
-	if got := string(n.Nodes[r].Extra["name"]); got != `"Brackenridge service reservoir"` {
+	if got := string(n.Nodes[r].Extra["name"]); got != `"Quennick Hill service reservoir"` {
 		t.Errorf("R-1 extra name: got %s", got)
 	}
 	// P-1 gives length_m; P-2 takes its length from geometry: two points

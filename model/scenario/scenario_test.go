@@ -18,7 +18,7 @@ import (
 
 const dir = "../../testdata/scenario"
 
-// testNetwork is the small Fernhollow network the corpus refers to:
+// testNetwork is the small Zephyrholt network the corpus refers to:
 // R-src feeds J-1, a chain J-1 … J-7 in zone north, J-2 in zone south,
 // and the tank T-hill.
 func testNetwork() *network.Network {
@@ -49,8 +49,8 @@ func mustTime(t *testing.T, s string) time.Time {
 	return v
 }
 
-func TestLoadFernhollow(t *testing.T) {
-	s, err := LoadFile(filepath.Join(dir, "fernhollow.yaml"))
+func TestLoadZephyrholt(t *testing.T) {
+	s, err := LoadFile(filepath.Join(dir, "zephyrholt.yaml"))
 	if err != nil {
 		t.Fatalf("LoadFile: %v", err)
 	}
@@ -125,10 +125,10 @@ func TestLoadSensorsFile(t *testing.T) {
 	if s.SensorsFile != filepath.Join(dir, "sensors.yaml") {
 		t.Errorf("SensorsFile: got %q", s.SensorsFile)
 	}
-	if s.TrueNetwork != filepath.Join(dir, "../network/fernhollow-true.geojson") {
+	if s.TrueNetwork != filepath.Join(dir, "../network/zephyrholt-true.geojson") {
 		t.Errorf("TrueNetwork: got %q", s.TrueNetwork)
 	}
-	if len(s.Sensors) != 2 || s.Sensors[0].Unit != "m3/h" || s.Sensors[1].Topic != "fernhollow/+/{sensor}" {
+	if len(s.Sensors) != 2 || s.Sensors[0].Unit != "m3/h" || s.Sensors[1].Topic != "zephyrholt/+/{sensor}" {
 		t.Errorf("sensors: got %+v", s.Sensors)
 	}
 	if s.SensorLines[1] != 8 {
