@@ -37,15 +37,16 @@ type Sensitivity struct {
 }
 
 // Sensitivities returns the derivatives of the observations at the
-// solution sol (which must come from this Solver's Solve) with respect
+// solution sol (which must come from Solve of a Solver of the same
+// network, not necessarily this one) with respect
 // to extra junction outflows and link resistance factors, with all
 // link states held as in sol. It factors the Jacobian of sol once and
 // then costs one sparse solve per observation (the adjoint method), plus
 // one per active pressure valve. It uses the Solver's workspace: do not
 // call it concurrently with Solve.
 func (s *Solver) Sensitivities(sol *Solution, obs []Observation) (*Sensitivity, error) {
-	if sol == nil || sol.solver != s {
-		return nil, errors.New("hydraulic: sensitivities: solution is not from this solver")
+	if sol == nil || sol.solver == nil || sol.solver.net != s.net {
+		return nil, errors.New("hydraulic: sensitivities: solution is not from a solver of this network")
 	}
 	nn, nl := len(s.net.Nodes), len(s.net.Links)
 	for i, o := range obs {
