@@ -93,7 +93,15 @@
 // A Symbolic may be shared by any number of goroutines. A Factor is not
 // safe for concurrent use; several Factors made from one Symbolic are
 // independent and may be used at the same time (for example one per
-// scenario being simulated). The package starts no goroutines.
+// scenario being simulated).
+//
+// For large patterns (about 10⁷ flops and more) Analyze splits the
+// elimination tree into two sets of independent subtrees and the supernodes
+// above them. Factorize then runs the second set on one extra goroutine,
+// started and joined inside the call (so no goroutine outlives it), unless
+// Options.Workers is 1 or GOMAXPROCS is 1. The split, not the number of
+// goroutines, fixes the order of operations: one and two goroutines give
+// bit-identical factors. Solve is sequential.
 //
 // # Sources
 //

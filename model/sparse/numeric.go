@@ -3,6 +3,7 @@ package sparse
 import (
 	"fmt"
 	"math"
+	"sync"
 )
 
 // Factor holds the numeric Cholesky factor L of one Symbolic pattern and
@@ -12,13 +13,28 @@ import (
 type Factor struct {
 	sym    *Symbolic
 	values []float64
-	relpos []int     // global row -> local row of the current supernode
-	head   []int     // per supernode: first descendant waiting to update it
-	link   []int     // next in that waiting list
-	next   []int     // per supernode: next row (local index) not yet used
-	tmp    []float64 // dense update block
+	link   []int // per supernode: next in the waiting list it is in
+	next   []int // per supernode: next row (local index) not yet used
+	ws     [2]workspace
 	x      []float64 // permuted right-hand side / solution
 	ok     bool      // the last Factorize succeeded
+
+	// Two goroutines when the plan has two parts and GOMAXPROCS allows.
+	workers int
+	// runSecond factors part 1 of the plan; built once in NewFactor so that
+	// starting it allocates nothing. wg joins it before Factorize returns.
+	runSecond func()
+	wg        sync.WaitGroup
+	diag, off []float64 // the values of the call under way (for runSecond)
+}
+
+// workspace is the scratch space of one goroutine of Factorize.
+type workspace struct {
+	relpos []int     // global row -> local row of the current supernode
+	head   []int     // per supernode: first descendant waiting to update it
+	tmp    []float64 // dense update block
+	fail   int       // first column (permuted) whose pivot failed, or -1
+	pivot  float64   // its pivot
 }
 
 // Symbolic returns the pattern this Factor belongs to.
@@ -36,6 +52,12 @@ func (f *Factor) Symbolic() *Symbolic { return f.sym }
 // linked lists advanced one target at a time), then its dense diagonal block
 // is factored and the block below it solved. Operations run in a fixed
 // order, so equal input gives bit-identical output.
+//
+// When the Symbolic's plan splits the elimination tree into two independent
+// parts (see Options.Workers), the parts are factored by two goroutines, the
+// second started and joined inside this call, and the supernodes above them
+// afterwards. The order of operations depends on the plan only, not on the
+// number of goroutines, so results are bit-identical either way.
 func (f *Factor) Factorize(diag, offdiag []float64) error {
 	s := f.sym
 	f.ok = false
@@ -45,31 +67,87 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 	if len(offdiag) != s.nIn {
 		return fmt.Errorf("sparse: factorize: %d off-diagonal values for %d pattern entries: %w", len(offdiag), s.nIn, ErrShape)
 	}
-	vals := f.values
-	ns := len(s.superStart) - 1
-	head, link, next, relpos := f.head, f.link, f.next, f.relpos
-	for k := range head {
-		head[k] = -1
+	for w := range f.ws {
+		ws := &f.ws[w]
+		for k := range ws.head {
+			ws.head[k] = -1
+		}
+		ws.fail = -1
 	}
-	for J := 0; J < ns; J++ {
-		f0, l0 := s.superStart[J], s.superStart[J+1]
-		rows := s.rowIdx[s.rowPtr[J]:s.rowPtr[J+1]]
-		r := len(rows)
-		LJ := vals[s.valPtr[J]:s.valPtr[J+1]]
-		// Assemble A's entries of J's columns into the cleared block.
-		clear(LJ)
-		for t := 0; t < l0-f0; t++ {
-			LJ[t*r+t] = diag[s.perm[f0+t]]
+	if f.workers > 1 && len(s.plan[1]) > 0 {
+		f.diag, f.off = diag, offdiag
+		f.wg.Add(1)
+		go f.runSecond()
+		f.runPart(0, diag, offdiag)
+		f.wg.Wait()
+		f.diag, f.off = nil, nil
+	} else {
+		f.runPart(0, diag, offdiag)
+		f.runPart(1, diag, offdiag)
+	}
+	// The first failed pivot in elimination order, as a sequential sweep
+	// would find it: a pivot depends on its own subtree only.
+	fail, pivot := f.ws[0].fail, f.ws[0].pivot
+	if c := f.ws[1].fail; c >= 0 && (fail < 0 || c < fail) {
+		fail, pivot = c, f.ws[1].pivot
+	}
+	if fail < 0 {
+		ws := &f.ws[0]
+		for _, J := range s.top {
+			if c := f.supernode(ws, J, diag, offdiag, f.ws[1].head[J]); c >= 0 {
+				fail, pivot = c, ws.pivot
+				break
+			}
 		}
-		src, dst := s.asmSrc[s.asmPtr[J]:s.asmPtr[J+1]], s.asmDst[s.asmPtr[J]:s.asmPtr[J+1]]
-		dst = dst[:len(src)]
-		for q, e := range src {
-			LJ[dst[q]] += offdiag[e]
+	}
+	if fail >= 0 {
+		return &NotPositiveDefiniteError{Row: s.perm[fail], Pivot: pivot}
+	}
+	f.ok = true
+	return nil
+}
+
+// runPart factors the subtrees of part w of the plan with workspace w,
+// stopping at the first failed pivot (recorded in the workspace).
+func (f *Factor) runPart(w int, diag, offdiag []float64) {
+	ws := &f.ws[w]
+	for _, rg := range f.sym.plan[w] {
+		for J := rg[0]; J < rg[1]; J++ {
+			if c := f.supernode(ws, J, diag, offdiag, -1); c >= 0 {
+				ws.fail = c
+				return
+			}
 		}
-		for idx, row := range rows {
-			relpos[row] = idx
-		}
-		for K := head[J]; K != -1; {
+	}
+}
+
+// supernode assembles, updates and factors supernode J with workspace ws:
+// the descendants waiting in ws.head[J] (and in the list starting at
+// other, from the other workspace, for supernodes above the split) update
+// it, then its panel is factored and J is linked to the next supernode its
+// structure reaches. It returns the failed column (permuted) or -1.
+func (f *Factor) supernode(ws *workspace, J int, diag, offdiag []float64, other int) int {
+	s := f.sym
+	vals, link, next, relpos, head := f.values, f.link, f.next, ws.relpos, ws.head
+	f0, l0 := s.superStart[J], s.superStart[J+1]
+	rows := s.rowIdx[s.rowPtr[J]:s.rowPtr[J+1]]
+	r := len(rows)
+	LJ := vals[s.valPtr[J]:s.valPtr[J+1]]
+	// Assemble A's entries of J's columns into the cleared block.
+	clear(LJ)
+	for t := 0; t < l0-f0; t++ {
+		LJ[t*r+t] = diag[s.perm[f0+t]]
+	}
+	src, dst := s.asmSrc[s.asmPtr[J]:s.asmPtr[J+1]], s.asmDst[s.asmPtr[J]:s.asmPtr[J+1]]
+	dst = dst[:len(src)]
+	for q, e := range src {
+		LJ[dst[q]] += offdiag[e]
+	}
+	for idx, row := range rows {
+		relpos[row] = idx
+	}
+	for pass, K := 0, head[J]; pass < 2; pass, K = pass+1, other {
+		for K != -1 {
 			nextK := link[K]
 			rowsK := s.rowIdx[s.rowPtr[K]:s.rowPtr[K+1]]
 			rK := len(rowsK)
@@ -80,7 +158,7 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 			for q < rK && rowsK[q] < l0 {
 				q++
 			}
-			f.update(LJ, r, f0, LK, rK, kK, rowsK, p, q)
+			f.update(ws, LJ, r, f0, LK, rK, kK, rowsK, p, q)
 			next[K] = q
 			if q < rK {
 				T := s.colSuper[rowsK[q]]
@@ -89,19 +167,19 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 			}
 			K = nextK
 		}
-		k := l0 - f0
-		if err := factorPanel(LJ, r, k); err >= 0 {
-			return &NotPositiveDefiniteError{Row: s.perm[f0+err], Pivot: LJ[err*r+err]}
-		}
-		if r > k {
-			next[J] = k
-			T := s.colSuper[rows[k]]
-			link[J] = head[T]
-			head[T] = J
-		}
 	}
-	f.ok = true
-	return nil
+	k := l0 - f0
+	if c := factorPanel(LJ, r, k); c >= 0 {
+		ws.pivot = LJ[c*r+c]
+		return f0 + c
+	}
+	if r > k {
+		next[J] = k
+		T := s.colSuper[rows[k]]
+		link[J] = head[T]
+		head[T] = J
+	}
+	return -1
 }
 
 // update subtracts from supernode J (values LJ, r rows, first column f0) the
@@ -110,11 +188,11 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 // >= c of K, L_J(i, c) -= Σ_t L_K(i,t) L_K(c,t). The product goes to a dense
 // scratch block by gemmNT, four target columns at a time from their
 // diagonal down, and is then scattered through the relative row positions.
-func (f *Factor) update(LJ []float64, r, f0 int, LK []float64, rK, kK int, rowsK []int, p, q int) {
-	relpos := f.relpos
+func (f *Factor) update(ws *workspace, LJ []float64, r, f0 int, LK []float64, rK, kK int, rowsK []int, p, q int) {
+	relpos := ws.relpos
 	m := rK - p
 	nq := q - p
-	W := f.tmp[:m*nq]
+	W := ws.tmp[:m*nq]
 	clear(W)
 	A := LK[p:]
 	for j0 := 0; j0 < nq; j0 += 4 {

@@ -3,6 +3,7 @@ package sparse
 import (
 	"errors"
 	"fmt"
+	"runtime"
 	"slices"
 )
 
@@ -41,6 +42,11 @@ func (o Ordering) String() string {
 type Options struct {
 	// Ordering is the fill-reducing ordering; zero means MinimumDegree.
 	Ordering Ordering
+	// Workers is the number of goroutines Factorize may use: 1 or 2. Zero
+	// means 2 when the factorisation is large enough to gain from it
+	// (about 10⁷ flops) and GOMAXPROCS is at least 2, else 1. The results
+	// do not depend on it.
+	Workers int
 }
 
 // ErrShape reports slices of the wrong length or out-of-range indices given to
@@ -87,6 +93,11 @@ type Symbolic struct {
 	// leading dimension r at values[valPtr[s]:valPtr[s+1]].
 	valPtr    []int
 	maxRows   int
+	// plan[w] lists the supernode ranges [a, b) of the subtrees factored by
+	// goroutine w; top lists the supernodes above them, factored after.
+	plan    [2][][2]int
+	top     []int
+	workers int
 	maxUpdate int // largest dense update block, (r-k)² over supernodes
 
 	// Assembly of supernode s: for q in asmPtr[s]..asmPtr[s+1]-1, input
@@ -161,7 +172,12 @@ func Analyze(n int, rows, cols []int, opts Options) (*Symbolic, error) {
 	default:
 		return nil, fmt.Errorf("sparse: analyze: unknown ordering %d", int(opts.Ordering))
 	}
-	return analyzeOrdered(n, rows, cols, ptr, adj, order), nil
+	if opts.Workers < 0 || opts.Workers > 2 {
+		return nil, fmt.Errorf("sparse: analyze: %d workers, want 0, 1 or 2", opts.Workers)
+	}
+	s := analyzeOrdered(n, rows, cols, ptr, adj, order)
+	s.makePlan(opts.Workers)
+	return s, nil
 }
 
 // NewFactor returns a numeric workspace for this pattern: the values of L and
@@ -169,14 +185,35 @@ func Analyze(n int, rows, cols []int, opts Options) (*Symbolic, error) {
 // Factor is reusable for any number of Factorize calls with new values.
 func (s *Symbolic) NewFactor() *Factor {
 	ns := len(s.superStart) - 1
-	return &Factor{
+	f := &Factor{
 		sym:    s,
 		values: make([]float64, s.valPtr[ns]),
-		relpos: make([]int, s.n),
-		head:   make([]int, ns),
 		link:   make([]int, ns),
 		next:   make([]int, ns),
-		tmp:    make([]float64, s.maxUpdate),
 		x:      make([]float64, s.n),
 	}
+	parts := 1
+	if len(s.plan[1]) > 0 {
+		parts = 2
+	}
+	for w := 0; w < parts; w++ {
+		f.ws[w] = workspace{
+			relpos: make([]int, s.n),
+			head:   make([]int, ns),
+			tmp:    make([]float64, s.maxUpdate),
+		}
+	}
+	if parts == 1 {
+		// The second workspace only needs its (empty) waiting lists.
+		f.ws[1].head = make([]int, ns)
+	}
+	f.workers = s.workers
+	if p := runtime.GOMAXPROCS(0); f.workers > p {
+		f.workers = p
+	}
+	f.runSecond = func() {
+		defer f.wg.Done()
+		f.runPart(1, f.diag, f.off)
+	}
+	return f
 }
