@@ -91,13 +91,13 @@ type Symbolic struct {
 	rowIdx []int
 	// Numeric values of supernode s: a dense column-major r×k block with
 	// leading dimension r at values[valPtr[s]:valPtr[s+1]].
-	valPtr    []int
-	maxRows   int
+	valPtr  []int
+	maxRows int
 	// plan[w] lists the supernode ranges [a, b) of the subtrees factored by
 	// goroutine w; top lists the supernodes above them, factored after.
-	plan    [2][][2]int
-	top     []int
-	workers int
+	plan      [2][][2]int
+	top       []int
+	workers   int
 	maxUpdate int // largest dense update block, (r-k)² over supernodes
 
 	// Assembly of supernode s: for q in asmPtr[s]..asmPtr[s+1]-1, input
