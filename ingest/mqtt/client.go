@@ -322,7 +322,8 @@ func (c *Client) options() *paho.ClientOptions {
 	if c.tls != nil {
 		o.SetTLSConfig(c.tls)
 	}
-	o.SetDefaultPublishHandler(c.onMessage) // before Connect (queued session messages)
+	o.SetCustomOpenConnectionFn(openConnection) // buffered reads (conn.go)
+	o.SetDefaultPublishHandler(c.onMessage)     // before Connect (queued session messages)
 	o.SetOnConnectHandler(c.onConnect)
 	o.SetConnectionLostHandler(c.onLost)
 	o.SetConnectionNotificationHandler(c.onNotification)

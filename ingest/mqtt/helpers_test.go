@@ -2,6 +2,7 @@ package mqtt
 
 import (
 	"context"
+	"crypto/tls"
 	"fmt"
 	"math"
 	"sync"
@@ -194,3 +195,15 @@ func newPipe(t testing.TB, sensors []telemetry.Sensor) *decode.Pipeline {
 }
 
 func relDiff(a, b float64) float64 { return math.Abs(a-b) / math.Max(math.Abs(b), 1e-300) }
+
+func newTLSPublisher(t testing.TB, url string, tc *tls.Config) *publisher {
+	t.Helper()
+	o := paho.NewClientOptions().AddBroker(url).SetClientID("tls-pub").SetTLSConfig(tc).
+		SetCleanSession(false).SetAutoReconnect(true).SetConnectRetry(true).SetStore(paho.NewMemoryStore())
+	cl := paho.NewClient(o)
+	if err := waitToken(cl.Connect(), 10*time.Second); err != nil {
+		t.Fatalf("TLS publisher connect: %v", err)
+	}
+	t.Cleanup(func() { cl.Disconnect(100) })
+	return &publisher{t: t, cl: cl}
+}
