@@ -170,6 +170,28 @@ func Open(opts Options) (*Manager, error) {
 		p := p
 		m.people[id] = &p
 	}
+	// Hysteresis counts only time the service was watching: after a
+	// downtime, evidence times move forward by the gap since the last Tick,
+	// so an outage does not return every alert to normal at once.
+	// Escalation and shelving keep wall-clock time: they are due anyway.
+	last, err := st.lastTick()
+	if err != nil {
+		st.close()
+		return nil, fmt.Errorf("alerts: store: %w", err)
+	}
+	if now := m.now().UTC(); !last.IsZero() && now.After(last) {
+		gap := now.Sub(last)
+		for id, a := range m.open {
+			a.LastEvidence = a.LastEvidence.Add(gap)
+			if a.LastEvidence.After(now) {
+				a.LastEvidence = now
+			}
+			m.dirty[id] = true
+		}
+		if len(m.open) > 0 && gap > time.Minute {
+			m.log.Info().Dur("gap", gap).Int("open", len(m.open)).Msg("resuming after downtime: hysteresis paused for the gap")
+		}
+	}
 	n, err := st.pending()
 	if err != nil {
 		st.close()
@@ -530,6 +552,7 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 		}
 	}
 	m.summaries(b, now)
+	b.lastTick = now
 	if err := m.commitLocked(b); err != nil {
 		errs = append(errs, err)
 	}

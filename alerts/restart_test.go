@@ -220,3 +220,54 @@ func TestEmailFailures(t *testing.T) {
 		t.Errorf("no recipient: got %v, want a permanent error", err)
 	}
 }
+
+// TestRestartAfterDowntime: an outage longer than clear_after does not
+// return alerts to normal at the first Tick after the restart; the
+// hysteresis resumes where it stopped.
+func TestRestartAfterDowntime(t *testing.T) {
+	dir := t.TempDir()
+	cfg, err := ParseConfig([]byte("clear_after: 30m\nreceivers: [{id: ana}]\nroutes: [{levels: [{notify: [ana]}]}]\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	t0 := time.Date(2026, 3, 2, 2, 0, 0, 0, time.UTC)
+	clock := &testClock{t: t0}
+	open := func() *Manager {
+		m, err := Open(Options{Config: cfg, DataDir: dir, Logger: zerolog.Nop(), Now: clock.Now, TickInterval: -1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return m
+	}
+	ctx := context.Background()
+	m := open()
+	m.Observe(ctx, finding.Finding{Kind: finding.Leak, Zone: "z", SizeLPS: 1})
+	clock.Set(t0.Add(10 * time.Minute))
+	m.Tick(ctx, clock.Now())
+	crash(t, m)
+	// Down for three hours; 20 minutes of the 30 remain.
+	clock.Set(t0.Add(3*time.Hour + 10*time.Minute))
+	m = open()
+	defer m.Close()
+	state := func() State {
+		a, _, err := m.Get("AL-000001")
+		if err != nil {
+			t.Fatal(err)
+		}
+		return a.State
+	}
+	m.Tick(ctx, clock.Now())
+	if s := state(); s != Unacknowledged {
+		t.Fatalf("first tick after the outage: %s, want unacknowledged", s)
+	}
+	clock.Set(t0.Add(3*time.Hour + 29*time.Minute))
+	m.Tick(ctx, clock.Now())
+	if s := state(); s != Unacknowledged {
+		t.Errorf("19 min after restart: %s, want unacknowledged", s)
+	}
+	clock.Set(t0.Add(3*time.Hour + 30*time.Minute))
+	m.Tick(ctx, clock.Now())
+	if s := state(); s != ReturnedUnacknowledged {
+		t.Errorf("20 min after restart (30 min of watching): %s, want returned-unacknowledged", s)
+	}
+}

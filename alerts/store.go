@@ -19,6 +19,8 @@ var (
 	bucketOutbox     = []byte("outbox")
 	bucketDeliveries = []byte("deliveries")
 	bucketPeople     = []byte("people")
+	bucketMeta       = []byte("meta")
+	keyLastTick      = []byte("last_tick")
 )
 
 // deliveryLogLimit is how many delivery records are kept (the oldest go).
@@ -44,6 +46,8 @@ type batch struct {
 	people map[string]personState
 	audit  []AuditRecord
 	notes  []Notification
+	// lastTick, if set, is the time of the Tick that made the batch.
+	lastTick time.Time
 }
 
 func newBatch() *batch {
@@ -51,7 +55,7 @@ func newBatch() *batch {
 }
 
 func (b *batch) empty() bool {
-	return len(b.alerts) == 0 && len(b.people) == 0 && len(b.audit) == 0 && len(b.notes) == 0
+	return len(b.alerts) == 0 && len(b.people) == 0 && len(b.audit) == 0 && len(b.notes) == 0 && b.lastTick.IsZero()
 }
 
 // merge moves later changes of o into b (o wins).
@@ -64,6 +68,9 @@ func (b *batch) merge(o *batch) {
 	}
 	b.audit = append(b.audit, o.audit...)
 	b.notes = append(b.notes, o.notes...)
+	if o.lastTick.After(b.lastTick) {
+		b.lastTick = o.lastTick
+	}
 }
 
 func openStore(dir string) (*store, error) {
@@ -79,7 +86,7 @@ func openStore(dir string) (*store, error) {
 		return nil, fmt.Errorf("alerts: store %s: %w", path, err)
 	}
 	err = db.Update(func(tx *bolt.Tx) error {
-		for _, b := range [][]byte{bucketAlerts, bucketAudit, bucketOutbox, bucketDeliveries, bucketPeople} {
+		for _, b := range [][]byte{bucketAlerts, bucketAudit, bucketOutbox, bucketDeliveries, bucketPeople, bucketMeta} {
 			if _, err := tx.CreateBucketIfNotExists(b); err != nil {
 				return err
 			}
@@ -136,6 +143,12 @@ func (s *store) commit(b *batch) error {
 				return err
 			}
 		}
+		if !b.lastTick.IsZero() {
+			v, _ := b.lastTick.UTC().MarshalText()
+			if err := tx.Bucket(bucketMeta).Put(keyLastTick, v); err != nil {
+				return err
+			}
+		}
 		ob := tx.Bucket(bucketOutbox)
 		for i := range b.notes {
 			seq, _ := ob.NextSequence()
@@ -150,6 +163,18 @@ func (s *store) commit(b *batch) error {
 		}
 		return nil
 	})
+}
+
+// lastTick returns the time of the last persisted Tick (zero if none).
+func (s *store) lastTick() (time.Time, error) {
+	var t time.Time
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if v := tx.Bucket(bucketMeta).Get(keyLastTick); v != nil {
+			return t.UnmarshalText(v)
+		}
+		return nil
+	})
+	return t, err
 }
 
 // load returns every alert and person state stored.
