@@ -4,6 +4,9 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
+	"net/http"
+	"net/url"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -448,4 +451,38 @@ func BenchmarkOutageMemory(b *testing.B) {
 	growth := float64(int64(after) - int64(before))
 	b.ReportMetric(growth/float64(spooled)*1e5/1e6, "MB-heap/100k-points")
 	b.ReportMetric(float64(spooled), "spooled-points")
+}
+
+// The writer creates a missing database before writing (InfluxDB 1.8),
+// and again when the database disappears under it (404 on write).
+func TestCreatesMissingDatabase(t *testing.T) {
+	shared := testenv.Influx(t)
+	db := fmt.Sprintf("fresh_%d", time.Now().UnixNano())
+	cfg := serverConfig(testenv.InfluxServer{URL: shared.URL, Token: shared.Token, Org: shared.Org, DB: db, Bucket: db + "/autogen"})
+	h := startWriter(t, cfg, t.TempDir())
+	rs := readings(100, 2, time.Second)
+	if err := h.w.Add(points(rs[:50])...); err != nil {
+		t.Fatal(err)
+	}
+	h.drain(t, 30*time.Second)
+
+	resp, err := http.PostForm(shared.URL+"/query", url.Values{"q": {`DROP DATABASE "` + db + `"`}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK || strings.Contains(string(body), "error") {
+		t.Fatalf("DROP DATABASE: %s %s", resp.Status, body)
+	}
+	if err := h.w.Add(points(rs[50:])...); err != nil {
+		t.Fatal(err)
+	}
+	h.drain(t, 30*time.Second)
+	if st := h.w.Stats(); st.Retried == 0 || !strings.Contains(st.LastError, "database not found") {
+		t.Fatalf("Stats = %+v: want a retried 404 database not found", st)
+	}
+	src, _ := NewSource(cfg)
+	defer src.Close()
+	sameReadings(t, readAll(t, src, t0, t0.Add(time.Hour), nil), rs[50:])
 }
