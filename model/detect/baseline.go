@@ -26,10 +26,14 @@ type Baseline struct {
 	Memory int
 	// Floor is the smallest σ reported.
 	Floor float64
-	// Relearn counts the hours left in which new values replace the bin
-	// means outright: after a change has been accepted (a leak found), the
-	// day after it teaches each hour its new normal.
-	Relearn int
+	// Relearn counts the hours left in which new values teach the
+	// baseline a new level: after a change has been accepted (a leak
+	// found), the day after it is averaged and every bin moves by that
+	// day's mean deviation, keeping the fortnight's daily shape (one
+	// value per bin would carry its noise for weeks).
+	Relearn    int
+	RelearnSum float64
+	RelearnN   int
 }
 
 // Learned reports whether bin h has seen at least min values.
@@ -68,8 +72,13 @@ func (b *Baseline) Update(h int, x float64) {
 		return
 	}
 	if b.Relearn > 0 {
-		b.Mean[h] = x
+		b.RelearnSum += x - b.Mean[h]
+		b.RelearnN++
 		b.Relearn--
+		if b.Relearn == 0 {
+			b.Shift(b.RelearnSum / float64(b.RelearnN))
+			b.RelearnSum, b.RelearnN = 0, 0
+		}
 		return
 	}
 	mem := b.Memory

@@ -540,7 +540,10 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		res.Residual[si] = math.NaN()
 		if a := snap.Values[si]; usable(a) {
 			res.Residual[si] = a.Value - e
-			if info.evidence {
+			// Without the zone's balance the inflow-matched solve falls
+			// back to the patterns, and residuals carry the day's demand
+			// noise: they are not evidence then.
+			if info.evidence && (info.zone < 0 || len(d.zones[info.zone].inlets) == 0 || !math.IsNaN(res.Zones[info.zone].Imbalance)) {
 				d.st.SensorAcc[si].Sum += res.Residual[si]
 				d.st.SensorAcc[si].N++
 			}
@@ -826,12 +829,25 @@ func (d *Detector) closeHour(h time.Time) {
 // stuck test show directly: a value that has not moved for three hours,
 // three spikes within a day, or an hour out of range.
 func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
+	day := int(24 * time.Hour / d.cfg.Step)
 	for si := range d.sens {
 		ss := &d.st.Sensors[si]
+		a := snap.Values[si]
 		if ss.Excluded {
+			// A flow meter or level sensor (no residual of its own) comes
+			// back after a day of readings that ingest finds plausible.
+			if !d.sens[si].evidence {
+				if usable(a) {
+					ss.Quiet++
+				} else {
+					ss.Quiet = 0
+				}
+				if ss.Quiet >= day {
+					ss.Excluded, ss.Quiet, ss.BadSteps, ss.Spikes, ss.Unchanged = false, 0, 0, nil, 0
+				}
+			}
 			continue
 		}
-		a := snap.Values[si]
 		reason := ""
 		switch a.Quality {
 		case telemetry.Stuck, telemetry.OutOfRange:
@@ -845,7 +861,10 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 			for len(ss.Spikes) > 0 && ss.Spikes[0].Before(cut) {
 				ss.Spikes = ss.Spikes[1:]
 			}
-			if len(ss.Spikes) >= 3 {
+			// Demand itself jumps now and then (a hydrant, a filling
+			// tanker); a logger is called faulty when it spikes several
+			// times a day (8 in 24 h, our choice).
+			if len(ss.Spikes) >= 8 {
 				reason = fmt.Sprintf("%d spikes within 24 h", len(ss.Spikes))
 			}
 		default:
