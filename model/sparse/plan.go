@@ -7,11 +7,10 @@ import (
 
 // planMinWork is the estimated work (multiply-adds) below which Analyze
 // does not split the factorisation into two parts: starting and joining a
-// goroutine costs microseconds, a split tree costs some locality; planMinGain
-// is the least estimated speed-up worth a split. Values of common practice
-// chosen by measurement, not from a source. (Variables so that tests can
-// force splits on small matrices.)
-var (
+// goroutine costs microseconds, a split tree costs some locality;
+// planMinGain is the least estimated speed-up worth a split. Values of
+// common practice chosen by measurement, not from a source.
+const (
 	planMinWork = 1e7
 	planMinGain = 1.25
 )
@@ -23,9 +22,10 @@ var (
 // 18(4):291-314): the largest subtree is split at its root until a greedy
 // two-way assignment of the subtrees is balanced within 5 %. Subtrees of
 // different parts share no supernode and update none of each other's, so
-// the two parts can be factored at the same time. The plan depends on the
+// the two parts can be factored at the same time. With force (tests) any
+// pattern of two or more supernodes is split. The plan depends on the
 // pattern only, so results do not depend on how many goroutines run it.
-func (s *Symbolic) makePlan(workers int) {
+func (s *Symbolic) makePlan(workers int, force bool) {
 	ns := len(s.superStart) - 1
 	s.plan = [2][][2]int{{{0, ns}}, nil}
 	s.top = nil
@@ -53,7 +53,7 @@ func (s *Symbolic) makePlan(workers int) {
 			sparent[k] = s.colSuper[p]
 		}
 	}
-	if total < planMinWork {
+	if total < planMinWork && !force {
 		return
 	}
 	own := make([]float64, ns)
@@ -121,7 +121,7 @@ func (s *Symbolic) makePlan(workers int) {
 		}
 	}
 	// Keep the split only if it promises a real gain.
-	if len(bins[1]) == 0 || total/(topWork+max(load[0], load[1])) < planMinGain {
+	if len(bins[1]) == 0 || (!force && total/(topWork+max(load[0], load[1])) < planMinGain) {
 		return
 	}
 	for w := range bins {

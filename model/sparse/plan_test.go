@@ -6,20 +6,11 @@ import (
 	"testing"
 )
 
-// forceSplit makes Analyze split every pattern with at least two
-// supernodes, for the duration of a test.
-func forceSplit(t *testing.T) {
-	w, g := planMinWork, planMinGain
-	planMinWork, planMinGain = 0, 0
-	t.Cleanup(func() { planMinWork, planMinGain = w, g })
-}
-
 // TestPlanCovers checks that a split plan covers every supernode exactly
 // once and that no subtree of one part has an ancestor in the other.
 func TestPlanCovers(t *testing.T) {
-	forceSplit(t)
 	for _, p := range testPatterns() {
-		sym, err := Analyze(p.n, p.rows, p.cols, Options{})
+		sym, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -67,15 +58,14 @@ func TestPlanCovers(t *testing.T) {
 // and the refactorisation checks with split plans, and checks that one and
 // two goroutines give bit-identical factors.
 func TestSplitPlanSolves(t *testing.T) {
-	forceSplit(t)
-	checkAgainstDense(t)
-	TestNotPositiveDefinite(t)
-	TestRefactorize(t)
+	checkAgainstDense(t, true)
+	checkNotPositiveDefinite(t, true)
+	checkRefactorize(t, true)
 	for _, p := range []pattern{networkPattern(30, 0.75, 8), gridPattern(25, 20), treePlusPattern(500, 50, 3)} {
 		d, o := values(p, 6)
 		var got [2][]float64
 		for w := 1; w <= 2; w++ {
-			sym, err := Analyze(p.n, p.rows, p.cols, Options{Workers: w})
+			sym, err := Analyze(p.n, p.rows, p.cols, Options{Workers: w, forceSplit: true})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -103,7 +93,7 @@ func TestSplitPlanSolves(t *testing.T) {
 		}
 		// A failed pivot in either part is reported at the first failing
 		// column in elimination order.
-		sym, _ := Analyze(p.n, p.rows, p.cols, Options{Workers: 2})
+		sym, _ := Analyze(p.n, p.rows, p.cols, Options{Workers: 2, forceSplit: true})
 		perm := sym.Perm()
 		for _, k := range []int{0, p.n / 3, p.n - 1} {
 			bad := slices.Clone(d)

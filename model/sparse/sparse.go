@@ -47,6 +47,9 @@ type Options struct {
 	// (about 10⁷ flops) and GOMAXPROCS is at least 2, else 1. The results
 	// do not depend on it.
 	Workers int
+
+	// forceSplit makes Analyze split even small patterns (tests only).
+	forceSplit bool
 }
 
 // ErrShape reports slices of the wrong length or out-of-range indices given to
@@ -176,7 +179,7 @@ func Analyze(n int, rows, cols []int, opts Options) (*Symbolic, error) {
 		return nil, fmt.Errorf("sparse: analyze: %d workers, want 0, 1 or 2", opts.Workers)
 	}
 	s := analyzeOrdered(n, rows, cols, ptr, adj, order)
-	s.makePlan(opts.Workers)
+	s.makePlan(opts.Workers, opts.forceSplit)
 	return s, nil
 }
 

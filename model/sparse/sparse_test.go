@@ -78,14 +78,14 @@ func TestAgainstDenseCholesky(t *testing.T) {
 	defer func() { useVector = vec }()
 	for _, v := range []bool{vec, false} {
 		useVector = v
-		checkAgainstDense(t)
+		checkAgainstDense(t, false)
 	}
 }
 
-func checkAgainstDense(t *testing.T) {
+func checkAgainstDense(t *testing.T, split bool) {
 	for _, p := range testPatterns() {
 		for _, o := range allOrderings {
-			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o})
+			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split})
 			if err != nil {
 				t.Fatalf("%s/%v: Analyze: %v", p.name, o, err)
 			}
@@ -280,12 +280,14 @@ func TestMinimumDegreeFill(t *testing.T) {
 
 // TestNotPositiveDefinite checks that an indefinite matrix is reported at
 // the original row whose pivot fails.
-func TestNotPositiveDefinite(t *testing.T) {
+func TestNotPositiveDefinite(t *testing.T) { checkNotPositiveDefinite(t, false) }
+
+func checkNotPositiveDefinite(t *testing.T, split bool) {
 	// A diagonal matrix with one negative entry: the failing row is that
 	// entry whatever the ordering.
 	for _, o := range allOrderings {
 		p := pattern{n: 6}
-		sym, err := Analyze(p.n, nil, nil, Options{Ordering: o})
+		sym, err := Analyze(p.n, nil, nil, Options{Ordering: o, forceSplit: split})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -307,7 +309,7 @@ func TestNotPositiveDefinite(t *testing.T) {
 		for _, bad := range []int{0, 14, 35} {
 			diag, off := values(p, 4)
 			diag[bad] = -0.5
-			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o})
+			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -352,9 +354,11 @@ func TestNotPositiveDefinite(t *testing.T) {
 
 // TestRefactorize checks that a reused Factor with new values gives exactly
 // the result of a fresh Analyze+Factorize, and that reruns are bit-identical.
-func TestRefactorize(t *testing.T) {
+func TestRefactorize(t *testing.T) { checkRefactorize(t, false) }
+
+func checkRefactorize(t *testing.T, split bool) {
 	p := networkPattern(20, 0.7, 12)
-	sym, err := Analyze(p.n, p.rows, p.cols, Options{})
+	sym, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -376,7 +380,7 @@ func TestRefactorize(t *testing.T) {
 	x2 := make([]float64, p.n)
 	f.Solve(x2, b)
 
-	sym2, err := Analyze(p.n, p.rows, p.cols, Options{})
+	sym2, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -518,6 +522,58 @@ func TestManyFactorsOneSymbolic(t *testing.T) {
 		for i := range x {
 			if results[g] == nil || results[g][i] != x[i] {
 				t.Fatalf("factor %d: concurrent result differs at %d", g, i)
+			}
+		}
+	}
+}
+
+// TestPoissonChain checks the discrete 1D Poisson matrix tridiag(−1,2,−1),
+// whose solution for b = 1 is x_i = i(n+1−i)/2, i = 1..n (the second
+// difference of a quadratic; e.g. Strang 2007, "Computational Science and
+// Engineering", §1.2, from memory). The entries come shuffled, in both
+// triangles, and split into duplicates that must be summed.
+func TestPoissonChain(t *testing.T) {
+	const n = 2000
+	rng := rand.New(rand.NewPCG(4, 4))
+	var rows, cols []int
+	var off []float64
+	for i := 0; i+1 < n; i++ {
+		// −1 split as −0.25 + −0.75, one half in each triangle.
+		rows = append(rows, i, i+1)
+		cols = append(cols, i+1, i)
+		off = append(off, -0.25, -0.75)
+	}
+	idx := rng.Perm(len(rows))
+	r2, c2, o2 := make([]int, len(idx)), make([]int, len(idx)), make([]float64, len(idx))
+	for k, j := range idx {
+		r2[k], c2[k], o2[k] = rows[j], cols[j], off[j]
+	}
+	diag := make([]float64, n)
+	for i := range diag {
+		diag[i] = 2
+	}
+	for _, o := range allOrderings {
+		sym, err := Analyze(n, r2, c2, Options{Ordering: o})
+		if err != nil {
+			t.Fatal(err)
+		}
+		// A chain has no fill in a good order: nnz(L) = 2n − 1.
+		if o != Natural && sym.NNZ() != 2*n-1 {
+			t.Errorf("%v: chain nnz(L) = %d, want %d", o, sym.NNZ(), 2*n-1)
+		}
+		f := sym.NewFactor()
+		if err := f.Factorize(diag, o2); err != nil {
+			t.Fatal(err)
+		}
+		x := make([]float64, n)
+		for i := range x {
+			x[i] = 1
+		}
+		f.Solve(x, x)
+		for i := range x {
+			want := float64(i+1) * float64(n-i) / 2
+			if d := math.Abs(x[i] - want); d > 1e-9*want {
+				t.Fatalf("%v: x[%d] = %.12g, want %.12g (rel diff %.3g > 1e-9)", o, i, x[i], want, d/want)
 			}
 		}
 	}
