@@ -130,12 +130,14 @@ func (w *walker) value(i, depth int, mask uint8) (int, error) {
 	}
 	// Paths that end here record this value.
 	var here uint8
-	for b := 0; b < w.n; b++ {
-		if mask&(1<<b) != 0 && len(w.paths[b]) == depth {
-			here |= 1 << b
+	if mask != 0 {
+		for b := 0; b < w.n; b++ {
+			if mask&(1<<b) != 0 && len(w.paths[b]) == depth {
+				here |= 1 << b
+			}
 		}
+		mask &^= here
 	}
-	mask &^= here
 	start := i
 	var k kind
 	var end int
@@ -284,6 +286,9 @@ func scanString(d []byte, i int) (int, bool, error) {
 	esc := false
 	for j := i + 1; j < len(d); j++ {
 		c := d[j]
+		if c >= 0x20 && c != '"' && c != '\\' {
+			continue // the common case, kept tight
+		}
 		switch {
 		case c == '"':
 			return j + 1, esc, nil
