@@ -12,12 +12,12 @@ func gridNetwork(k int) *Network {
 	var nodes []Node
 	var links []Link
 	const step = 0.0027 // about 300 m of latitude
-	nodes = append(nodes, Node{ID: "R", Kind: Reservoir, Head: 80, Elevation: 80, Coord: Point{9, 45 - step}, HasCoord: true})
+	nodes = append(nodes, Node{ID: "R", Kind: Reservoir, Head: 80, Elevation: 80, Coord: Point{9, -45 - step}, HasCoord: true})
 	id := func(i, j int) int { return 1 + i*k + j }
 	for i := 0; i < k; i++ {
 		for j := 0; j < k; j++ {
 			nodes = append(nodes, Node{ID: fmt.Sprintf("J-%d-%d", i, j), Kind: Junction, Elevation: 20, Demand: 0.1,
-				Coord: Point{9 + float64(j)*step, 45 + float64(i)*step}, HasCoord: true, Zone: "z"})
+				Coord: Point{9 + float64(j)*step, -45 + float64(i)*step}, HasCoord: true, Zone: "z"})
 		}
 	}
 	add := func(a, b int) {

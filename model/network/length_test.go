@@ -33,11 +33,11 @@ func TestGreatCircleKnownArcs(t *testing.T) {
 		want float64
 	}{
 		{"equator 1°", Point{0, 0}, Point{1, 0}, r * math.Pi / 180},
-		{"meridian 1° at 45°N", Point{9, 45}, Point{9, 46}, r * math.Pi / 180},
+		{"meridian 1° at 45°S", Point{9, -46}, Point{9, -45}, r * math.Pi / 180},
 		{"pole to equator", Point{30, 0}, Point{-150, 90}, r * math.Pi / 2},
 		{"antipodes on the equator", Point{0, 0}, Point{180, 0}, r * math.Pi},
-		{"same point", Point{9.1, 45.2}, Point{9.1, 45.2}, 0},
-		{"1e-5° meridian step (about 1.1 m)", Point{9.1, 45.2}, Point{9.1, 45.20001}, r * 1e-5 * math.Pi / 180},
+		{"same point", Point{9.1, -45.2}, Point{9.1, -45.2}, 0},
+		{"1e-5° meridian step (about 1.1 m)", Point{9.1, -45.2}, Point{9.1, -45.19999}, r * 1e-5 * math.Pi / 180},
 	}
 	for _, c := range cases {
 		got := GreatCircle(c.a, c.b)

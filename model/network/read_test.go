@@ -236,7 +236,7 @@ func TestReadTwoLoop(t *testing.T) {
 		t.Errorf("R-1 extra name: got %s", got)
 	}
 	// P-1 gives length_m; P-2 takes its length from geometry: two points
-	// on the parallel 45.2°N, 0.005105° apart. On a sphere the great
+	// on the parallel 45.2°S, 0.005105° apart. On a sphere the great
 	// circle between two points of one parallel is a little shorter
 	// than the parallel's arc R·cos φ·Δλ; for 400 m the difference is
 	// below 1 mm (geometry of the sphere), so compare with the arc.
@@ -346,18 +346,18 @@ func TestRoundTripFiles(t *testing.T) {
 func TestRoundTripEveryField(t *testing.T) {
 	// A network built in code that sets every field the format holds.
 	nodes := []Node{
-		{ID: "src", Kind: Reservoir, Coord: Point{-0.5, 51.25}, HasCoord: true, Head: 120.5, Elevation: 120.5, Zone: "a",
+		{ID: "src", Kind: Reservoir, Coord: Point{-0.5, -51.25}, HasCoord: true, Head: 120.5, Elevation: 120.5, Zone: "a",
 			Extra: map[string]json.RawMessage{"label": json.RawMessage(`{"en":"source","n":[1,2]}`)}},
-		{ID: "j1", Kind: Junction, Coord: Point{-0.49, 51.251}, HasCoord: true, Elevation: 31.25, Demand: 1.5, Pattern: "day",
+		{ID: "j1", Kind: Junction, Coord: Point{-0.49, -51.251}, HasCoord: true, Elevation: 31.25, Demand: 1.5, Pattern: "day",
 			Zone: "a", LeakCoeff: 0.013, LeakExponent: 1.18},
 		{ID: "j2", Kind: Junction, Elevation: -2, Demand: -0.25},
-		{ID: "t", Kind: Tank, Coord: Point{-0.48, 51.252}, HasCoord: true, Elevation: 60, Level: 2.5, MinLevel: 0.3, MaxLevel: math.Inf(1), TankDiameter: 12.5},
+		{ID: "t", Kind: Tank, Coord: Point{-0.48, -51.252}, HasCoord: true, Elevation: 60, Level: 2.5, MinLevel: 0.3, MaxLevel: math.Inf(1), TankDiameter: 12.5},
 		{ID: "t2", Kind: Tank, Elevation: 61, Level: 0, MaxLevel: 4},
 	}
 	links := []Link{
 		{ID: "p1", Kind: Pipe, From: 0, To: 1, Length: 123.456789, Diameter: 200, Roughness: 0.05, MinorLoss: 0.4,
 			Status: Closed, CheckValve: true, Material: "steel", Installed: 1931, Group: "g1",
-			Geometry: []Point{{-0.5, 51.25}, {-0.495, 51.2505}, {-0.49, 51.251}},
+			Geometry: []Point{{-0.5, -51.25}, {-0.495, -51.2505}, {-0.49, -51.251}},
 			Extra:    map[string]json.RawMessage{"asset": json.RawMessage(`"A-77"`), "depth": json.RawMessage(`1.2`)}},
 		{ID: "pu", Kind: Pump, From: 1, To: 2, Curve: [][2]float64{{12.5, 30}}, Speed: 0.85},
 		{ID: "pu0", Kind: Pump, From: 1, To: 2, Curve: [][2]float64{{0, 40}, {10, 38}, {20, 31}}, Speed: 1, Status: Closed},
@@ -512,12 +512,12 @@ func TestPlaceWarnings(t *testing.T) {
 	// J1 and J2 are 0.01° of latitude apart: R·π/180·0.01 = 1111.95 m on
 	// the IUGG mean sphere (geometry of the sphere).
 	src := `{"type": "FeatureCollection", "features": [
-{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, 45]}, "properties": {"id": "R", "kind": "reservoir", "head_m": 50}},
-{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, 45.01]}, "properties": {"id": "J", "kind": "junction", "elevation_m": 10}},
+{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, -45]}, "properties": {"id": "R", "kind": "reservoir", "head_m": 50}},
+{"type": "Feature", "geometry": {"type": "Point", "coordinates": [9, -44.99]}, "properties": {"id": "J", "kind": "junction", "elevation_m": 10}},
 {"type": "Feature", "geometry": null, "properties": {"id": "P1", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 500}},
 {"type": "Feature", "geometry": null, "properties": {"id": "P2", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1050}},
-{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9.01, 45], [9, 45.01]]}, "properties": {"id": "P3", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}},
-{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9, 45.01], [9.0001, 45]]}, "properties": {"id": "P4", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}}
+{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9.01, -45], [9, -44.99]]}, "properties": {"id": "P3", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}},
+{"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[9, -44.99], [9.0001, -45]]}, "properties": {"id": "P4", "kind": "pipe", "from": "R", "to": "J", "diameter_mm": 100, "roughness": 100, "length_m": 1200}}
 ]}`
 	_, probs := Parse([]byte(src), "p.geojson")
 	var got []string
@@ -526,7 +526,7 @@ func TestPlaceWarnings(t *testing.T) {
 	}
 	want := []string{
 		"p.geojson:4: feature P1: length_m: warning: 500 m is shorter than the 1112 m between nodes R and J",
-		// 0.01° of longitude at 45°N: 1111.95 m · cos 45° = 786.3 m.
+		// 0.01° of longitude at 45°S: 1111.95 m · cos 45° = 786.3 m.
 		"p.geojson:6: feature P3: geometry: warning: the line ends 786 m from its nodes R and J: check from and to",
 	}
 	// P2 (1050 m) is within the 10 % allowance; P4 runs To→From and ends
