@@ -97,11 +97,12 @@
 //
 // For large patterns (about 10⁷ flops and more) Analyze splits the
 // elimination tree into two sets of independent subtrees and the supernodes
-// above them. Factorize then runs the second set on one extra goroutine,
-// started and joined inside the call (so no goroutine outlives it), unless
-// Options.Workers is 1 or GOMAXPROCS is 1. The split, not the number of
-// goroutines, fixes the order of operations: one and two goroutines give
-// bit-identical factors. Solve is sequential.
+// above them. With Options.Workers = 2 (and GOMAXPROCS ≥ 2) Factorize runs
+// the second set on one extra goroutine, started and joined inside the call,
+// so no goroutine outlives it; by default everything runs on the caller's
+// goroutine. The split, not the number of goroutines, fixes the order of
+// operations: one and two goroutines give bit-identical factors. Solve is
+// sequential.
 //
 // # Sources
 //

@@ -29,10 +29,7 @@ func (s *Symbolic) makePlan(workers int, force bool) {
 	ns := len(s.superStart) - 1
 	s.plan = [2][][2]int{{{0, ns}}, nil}
 	s.top = nil
-	s.workers = workers
-	if s.workers == 0 {
-		s.workers = 2
-	}
+	s.workers = max(workers, 1)
 	if ns < 2 {
 		return
 	}

@@ -42,10 +42,12 @@ func (o Ordering) String() string {
 type Options struct {
 	// Ordering is the fill-reducing ordering; zero means MinimumDegree.
 	Ordering Ordering
-	// Workers is the number of goroutines Factorize may use: 1 or 2. Zero
-	// means 2 when the factorisation is large enough to gain from it
-	// (about 10⁷ flops) and GOMAXPROCS is at least 2, else 1. The results
-	// do not depend on it.
+	// Workers is the number of goroutines Factorize may use: 0 or 1 for
+	// one (the default), 2 to run the two independent parts of large
+	// factorisations (about 10⁷ flops and more, see the package manual) at
+	// the same time when GOMAXPROCS is at least 2. The results do not
+	// depend on it. With 2, the Go runtime may now and then allocate a
+	// goroutine descriptor when Factorize starts its helper.
 	Workers int
 
 	// forceSplit makes Analyze split even small patterns (tests only).
