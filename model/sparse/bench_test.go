@@ -58,31 +58,37 @@ func BenchmarkAnalyze(b *testing.B) {
 }
 
 // BenchmarkFactorizeSolve measures one numeric factorisation and one solve,
-// the work of one Newton iteration of the hydraulic solver.
+// the work of one Newton iteration of the hydraulic solver; at 100k nodes
+// also with Workers: 2.
 func BenchmarkFactorizeSolve(b *testing.B) {
 	for _, kind := range benchKinds {
 		for _, k := range benchSizes {
 			p := benchPattern(kind, k)
-			b.Run(fmt.Sprintf("%s/n=%d", kind, p.n), func(b *testing.B) {
-				sym, err := Analyze(p.n, p.rows, p.cols, Options{})
-				if err != nil {
-					b.Fatal(err)
+			for _, w := range []int{1, 2} {
+				if w == 2 && k < 300 {
+					continue
 				}
-				f := sym.NewFactor()
-				d, o := values(p, 1)
-				rhs := make([]float64, p.n)
-				for i := range rhs {
-					rhs[i] = 1
-				}
-				x := make([]float64, p.n)
-				for b.Loop() {
-					if err := f.Factorize(d, o); err != nil {
+				b.Run(fmt.Sprintf("%s/n=%d/w=%d", kind, p.n, w), func(b *testing.B) {
+					sym, err := Analyze(p.n, p.rows, p.cols, Options{Workers: w})
+					if err != nil {
 						b.Fatal(err)
 					}
-					f.Solve(x, rhs)
-				}
-				b.ReportMetric(float64(sym.NNZ()), "nnzL")
-			})
+					f := sym.NewFactor()
+					d, o := values(p, 1)
+					rhs := make([]float64, p.n)
+					for i := range rhs {
+						rhs[i] = 1
+					}
+					x := make([]float64, p.n)
+					for b.Loop() {
+						if err := f.Factorize(d, o); err != nil {
+							b.Fatal(err)
+						}
+						f.Solve(x, rhs)
+					}
+					b.ReportMetric(float64(sym.NNZ()), "nnzL")
+				})
+			}
 		}
 	}
 }

@@ -19,7 +19,7 @@ type Factor struct {
 	x      []float64 // permuted right-hand side / solution
 	ok     bool      // the last Factorize succeeded
 
-	// Two goroutines when the plan has two parts and GOMAXPROCS allows.
+	// Goroutines to use: Options.Workers, at most GOMAXPROCS.
 	workers int
 	// runSecond factors part 1 of the plan; built once in NewFactor so that
 	// starting it allocates nothing. wg joins it before Factorize returns.
@@ -54,9 +54,9 @@ func (f *Factor) Symbolic() *Symbolic { return f.sym }
 // order, so equal input gives bit-identical output.
 //
 // When the Symbolic's plan splits the elimination tree into two independent
-// parts (see Options.Workers), the parts are factored by two goroutines, the
-// second started and joined inside this call, and the supernodes above them
-// afterwards. The order of operations depends on the plan only, not on the
+// parts, the parts are factored one after the other or, with Options.Workers
+// = 2, by two goroutines (the second started and joined inside this call),
+// and the supernodes above them afterwards. The order of operations depends on the plan only, not on the
 // number of goroutines, so results are bit-identical either way.
 func (f *Factor) Factorize(diag, offdiag []float64) error {
 	s := f.sym
