@@ -67,8 +67,8 @@ func (s *Solver) Sensitivities(sol *Solution, obs []Observation) (*Sensitivity, 
 	s.coefficients(sol)
 	s.residuals(sol)
 	s.assemble(sol)
-	if err := s.fac.Factorize(s.diag, s.off); err != nil {
-		return nil, s.factorError(err)
+	if err := s.factorize(); err != nil {
+		return nil, err
 	}
 	nj := s.nj
 	jx := func(n int) int { return s.jx[n] }

@@ -55,6 +55,10 @@ func (s *Solver) nextState(k int, sol *Solution) LinkState {
 			if hf < hset-htol {
 				return Open
 			}
+			if ht > hset+htol {
+				// another valve holds the outlet higher: this one closes
+				return CheckShut
+			}
 		case Open:
 			if q < -qtol {
 				return CheckShut
@@ -80,8 +84,14 @@ func (s *Solver) nextState(k int, sol *Solution) LinkState {
 			if q < -qtol {
 				return CheckShut
 			}
-			if ht > hset+htol {
+			if ht > hset+htol || hf > hset+htol {
+				// downstream above the setting, or another valve holds
+				// the inlet higher: fully open
 				return Open
+			}
+			if hf < hset-htol {
+				// another valve holds the inlet lower: this one closes
+				return CheckShut
 			}
 		case Open:
 			if q < -qtol {
