@@ -81,6 +81,7 @@ else
   influxd_bin=$cache/bin/influxd
 fi
 flock -u 9
+exec 9>&-
 
 # --- 3. Start the servers -------------------------------------------------
 tmp=$(mktemp -d "${TMPDIR:-/tmp}/plumbline-testenv.XXXXXX")
