@@ -98,3 +98,30 @@ func TestNoAllocationPerIteration(t *testing.T) {
 		t.Errorf("allocations: cold solve (%d iterations) %v, warm solve (%d iterations) %v: the iteration loop allocates", base.Iterations, cold, warm.Iterations, hot)
 	}
 }
+
+// TestWarmEqualsCold: a warm start changes the path, not the answer.
+func TestWarmEqualsCold(t *testing.T) {
+	net, err := netgen.Town(netgen.Options{Junctions: 600, Seed: 5, Tank: true, Zones: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, base := mustSolve(t, net, nil)
+	c := &Conditions{Demand: make([]float64, len(net.Nodes))}
+	for i := range net.Nodes {
+		c.Demand[i] = 1.3 * net.Nodes[i].Demand
+	}
+	warm, err := s.Solve(c, base)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cold, err := s.Solve(c, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if warm.Iterations >= cold.Iterations {
+		t.Errorf("warm start took %d iterations, cold %d", warm.Iterations, cold.Iterations)
+	}
+	for i := range net.Nodes {
+		near(t, "head at "+net.Nodes[i].ID+" warm vs cold", warm.Head[i], cold.Head[i], 1e-5)
+	}
+}

@@ -453,10 +453,8 @@ func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 				return nil, errors.New("hydraulic: head correction is not finite (ill-conditioned network)")
 			}
 		}
-		prev := dqMax
 		dqMax = s.updateFlows(sol)
 		imb = s.residuals(sol)
-		_ = prev
 		changed := false
 		// Statuses are examined once the flows settle, and every tenth
 		// iteration while they do not (a wrong status can keep them
