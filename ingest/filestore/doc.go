@@ -36,5 +36,10 @@
 // # Concurrency
 //
 // Add, Read and Prune are safe to call from several goroutines. Read sees
-// every point whose Add returned before Read opened the hour's file.
+// every point whose Add returned before Read opened the hour's file. Each
+// Add writes each file's lines with one append-mode write, so separate
+// Store values on one folder (the service and a replay) do not interleave
+// lines; still, keep one writer per folder where you can, since the
+// torn-line repair of one opener cannot tell another's write in flight
+// from a crash.
 package filestore

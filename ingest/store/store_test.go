@@ -488,3 +488,27 @@ func TestCreatesMissingDatabase(t *testing.T) {
 	defer src.Close()
 	sameReadings(t, readAll(t, src, t0, t0.Add(time.Hour), nil), rs[50:])
 }
+
+// BenchmarkRead measures streaming 100,000 readings back with Flux from
+// the shared real server (6 h query windows).
+func BenchmarkRead(b *testing.B) {
+	srv := testenv.NewDatabase(b)
+	cfg := serverConfig(srv)
+	h := startWriter(b, cfg, b.TempDir())
+	rs := readings(100000, 50, 10*time.Second) // about 5.6 h
+	if err := h.w.Add(points(rs)...); err != nil {
+		b.Fatal(err)
+	}
+	h.drain(b, 5*time.Minute)
+	src, _ := NewSource(cfg)
+	defer src.Close()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		n := 0
+		err := src.Read(context.Background(), t0, t0.Add(24*time.Hour), nil, func(telemetry.Reading) error { n++; return nil })
+		if err != nil || n != len(rs) {
+			b.Fatalf("read %d of %d: %v", n, len(rs), err)
+		}
+	}
+	b.ReportMetric(float64(b.N*len(rs))/b.Elapsed().Seconds(), "readings/s")
+}
