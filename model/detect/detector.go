@@ -57,6 +57,9 @@ type sensorInfo struct {
 	floor float64
 	// evidence: a pressure or head sensor whose residual is tested
 	evidence bool
+	// accuracy is the instrument's stated σ in canonical units (at least
+	// 5 cm of water or 0.05 L/s when none is given: common practice).
+	accuracy float64
 	// pumpOff is the flow (L/s) below which a meter on a pump says the
 	// pump is stopped.
 	pumpOff float64
@@ -88,6 +91,9 @@ type state struct {
 	Sensors   []sensorState
 	Zones     []zoneState
 	Findings  []finding.Finding
+	// Resolved marks findings whose evidence has gone (a leak repaired:
+	// the night flow fell back), by index into Findings.
+	Resolved []bool
 	// Watch holds the findings whose location is still being refined.
 	Watch []watch
 	// MeanMult is each zone's moving mean inflow-matched multiplier, for
@@ -125,6 +131,8 @@ type zoneState struct {
 	LevelN       int
 	Jump         Baseline
 	Burst, Night CUSUM
+	// Repair watches the night imbalance falling back: a leak mended.
+	Repair CUSUM
 	Ring         ring
 	Nights       []float64 // adjusted mean night imbalance of quiet nights
 	NightSum     float64
@@ -285,6 +293,7 @@ func New(cfg Config) (*Detector, error) {
 			sigma = n
 		}
 		info.floor = math.Max(0.01, sigma/math.Sqrt(stepsPerHour))
+		info.accuracy = math.Max(0.05, sigma)
 		if info.link >= 0 && d.net.Links[info.link].Kind == network.Pump {
 			duty := 0.0
 			if c := d.net.Links[info.link].Curve; len(c) > 0 {
@@ -373,7 +382,7 @@ func (d *Detector) reset() {
 		z := &d.st.Zones[i]
 		z.Base = Baseline{Memory: 14, Floor: 0.05}
 		z.Jump = Baseline{Memory: 14, Floor: 0.002}
-		z.Burst, z.Night = d.designBurst, d.designNight
+		z.Burst, z.Night, z.Repair = d.designBurst, d.designNight, d.designNight
 		d.st.MeanMult[i] = 1
 	}
 }
@@ -381,6 +390,56 @@ func (d *Detector) reset() {
 // Findings returns every finding raised so far, in the order raised.
 func (d *Detector) Findings() []finding.Finding {
 	return append([]finding.Finding(nil), d.st.Findings...)
+}
+
+// Active returns the findings whose evidence still holds: leaks not yet
+// seen to be mended, blockages, and sensor faults whose sensor is still
+// left out of the evidence.
+func (d *Detector) Active() []finding.Finding {
+	var out []finding.Finding
+	for i, f := range d.st.Findings {
+		if i < len(d.st.Resolved) && d.st.Resolved[i] {
+			continue
+		}
+		if f.Kind == finding.SensorFault && len(f.Candidates) > 0 {
+			if si, ok := d.bySensor[f.Candidates[0].ID]; ok && !d.st.Sensors[si].Excluded {
+				continue
+			}
+		}
+		out = append(out, f)
+	}
+	return out
+}
+
+// repaired resolves the zone's most recent open leak when the night
+// imbalance has fallen back by at least half its size, and takes the fall
+// into the night baseline.
+func (d *Detector) repaired(zi int, drop float64, now time.Time) {
+	zone := d.zones[zi].z.ID
+	for len(d.st.Resolved) < len(d.st.Findings) {
+		d.st.Resolved = append(d.st.Resolved, false)
+	}
+	for i := len(d.st.Findings) - 1; i >= 0; i-- {
+		f := &d.st.Findings[i]
+		if f.Kind != finding.Leak || f.Zone != zone || d.st.Resolved[i] || f.Raised.After(now) {
+			continue
+		}
+		if drop >= f.SizeLPS/2 {
+			d.st.Resolved[i] = true
+			zs := &d.st.Zones[zi]
+			zs.Offset -= drop
+			zs.Night.Reset()
+			zs.Base.Relearn = 24
+			zs.ResidQuiet = now.Add(24 * time.Hour)
+			for _, si := range d.zones[zi].evidence {
+				ss := &d.st.Sensors[si]
+				ss.Base.Relearn = 24
+				ss.Up.Reset()
+				ss.Down.Reset()
+			}
+		}
+		return
+	}
 }
 
 // State returns the detector's state (gob-encoded: it holds NaN for
@@ -664,6 +723,10 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 			n := float64(len(zs.Nights))
 			sigma := math.Max(sd*math.Sqrt(1+1/n), math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
 			z := (adj - med) / sigma
+			if zs.Repair.Update(zs.NightStart, -z) {
+				d.repaired(zi, zs.Repair.Shift()*sigma, t)
+				zs.Repair.Reset()
+			}
 			alarm := zs.Night.Update(zs.NightStart, z)
 			if alarm {
 				size := zs.Night.Shift() * sigma
@@ -745,8 +808,13 @@ func (d *Detector) closeHour(h time.Time) {
 		} else {
 			zs.Ring.push(h, math.NaN())
 		}
-		if zs.Burst.S < zs.Burst.H/2 || zs.Base.Relearning() {
+		if relearning := zs.Base.Relearning(); zs.Burst.S < zs.Burst.H/2 || relearning {
 			zs.Base.Update(hr, x)
+			if relearning && !zs.Base.Relearning() {
+				// The baseline has moved to its new level: the burst test's
+				// recent level starts again from it.
+				zs.Level, zs.LevelN = 0, 0
+			}
 		}
 	}
 	for si, info := range d.sens {

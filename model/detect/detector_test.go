@@ -259,3 +259,38 @@ func TestRestartGivesSameFindings(t *testing.T) {
 		}
 	}
 }
+
+// A leak that is mended drops the night flow back: the finding stops
+// being active, and no new leak is raised.
+func TestRepairedLeakResolves(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(8*24*time.Hour + 13*time.Hour)
+	end := start.Add(3 * 24 * time.Hour)
+	snaps := simulate(t, net, 16, 6, []sim.Event{{Kind: finding.Leak, At: "J-43", Start: start, End: end, SizeLPS: 2.5, Exponent: 1}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var activeDuring int
+	for _, s := range snaps {
+		if _, err := d.Step(s); err != nil {
+			t.Fatal(err)
+		}
+		if s.Step.Equal(end.Add(-time.Hour)) {
+			activeDuring = len(d.Active())
+		}
+	}
+	fs := d.Findings()
+	if len(fs) == 0 || fs[0].Kind != finding.Leak {
+		t.Fatalf("findings %+v, want a leak first", fs)
+	}
+	if activeDuring != 1 {
+		t.Errorf("%d active findings while the leak ran, want 1", activeDuring)
+	}
+	if n := len(d.Active()); n != 0 {
+		t.Errorf("%d findings still active five nights after the repair: %+v", n, d.Active())
+	}
+	for _, f := range fs[1:] {
+		t.Errorf("extra finding %+v", f)
+	}
+}

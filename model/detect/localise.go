@@ -269,6 +269,7 @@ func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time, f fi
 	zs.Burst.Reset()
 	zs.Night.Reset()
 	zs.Base.Relearn = 24
+	zs.Level, zs.LevelN = 0, 0
 	for _, si := range d.zones[zi].evidence {
 		ss := &d.st.Sensors[si]
 		ss.Base.Relearn = 24
@@ -386,6 +387,13 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	}
 	desc := describeResiduals(d, ev, 3)
 	switch {
+	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:
+		// A logger that moved by less than its own stated accuracy is not
+		// faulty enough for a visit: no finding, its baseline takes it in.
+		ss.Up.Reset()
+		ss.Down.Reset()
+		ss.Base.Relearn = 24
+		return false
 	case faultSSE <= bestB && faultSSE <= bestL:
 		d.faultFinding(si, onset, now, fmt.Sprintf("residual moved %+.2f m since %s while the other loggers in zone %s stayed within their noise (%s) and the zone balance did not change",
 			ev.dr[me], onset.UTC().Format("2006-01-02 15:04"), zone, desc))

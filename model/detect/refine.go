@@ -38,6 +38,9 @@ func (d *Detector) raise(f finding.Finding) int {
 		f.Candidates = []finding.Candidate{}
 	}
 	d.st.Findings = append(d.st.Findings, f)
+	for len(d.st.Resolved) < len(d.st.Findings) {
+		d.st.Resolved = append(d.st.Resolved, false)
+	}
 	d.raised = append(d.raised, f)
 	return len(d.st.Findings) - 1
 }
