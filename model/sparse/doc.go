@@ -70,6 +70,20 @@
 // bit-identical output on one machine; results may differ in the last bits
 // between processors with and without fused multiply-add.
 //
+// # Speed
+//
+// Measured on the 2-core AMD EPYC development machine (thread CPU time, one
+// goroutine, other jobs running; go test -bench . gives the wall times):
+//
+//	graph      n        Analyze   of which ordering   Factorize   Solve
+//	network    99 856   ≈ 110 ms  ≈ 46 ms             ≈ 22 ms     ≈ 4 ms
+//	grid+      99 856   ≈ 115 ms  ≈ 50 ms             ≈ 55 ms     ≈ 10 ms
+//	grid       99 856   ≈ 80 ms   ≈ 28 ms             ≈ 37 ms     ≈ 9 ms
+//
+// ("grid+" is the full 5-point grid with 5 % diagonals and n/500 long random
+// links, nnz(L) ≈ 3.5 million.) A dense gonum Cholesky of order 2000 takes
+// about 2 s on the same machine.
+//
 // # Memory ownership
 //
 // Analyze copies what it needs; the caller may reuse rows and cols
