@@ -83,7 +83,7 @@ channels:
 	if _, err := m.Observe(ctx, leak("J-1")); err != nil {
 		t.Fatal(err)
 	}
-	waitFor(t, "first raise", func() bool { return len(hook.payloads()) == 1 })
+	waitFor(t, "first raise", func() bool { return len(hook.payloads()) == 1 && m.Stats().Pending == 0 })
 	stop()
 	// Ten minutes on, a second alert is raised but the process dies before
 	// delivering it.
