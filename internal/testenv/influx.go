@@ -19,6 +19,10 @@ type InfluxOptions struct {
 	MaxBodySize int
 	// DB is the database created at start; empty means "plumbline_test".
 	DB string
+	// NoFlux turns Flux off. InfluxDB 1.8 spends several CPU seconds
+	// compiling the Flux library at every start; a test that only writes
+	// and uses InfluxQL starts much faster without it.
+	NoFlux bool
 }
 
 // InfluxProcess is a private InfluxDB 1.8 server owned by one test. Its
@@ -53,7 +57,7 @@ func StartInfluxWith(t testing.TB, opt InfluxOptions) *InfluxProcess {
 		rpc = FreePort(t)
 	}
 	conf := filepath.Join(dir, "influxdb.conf")
-	if err := os.WriteFile(conf, []byte(InfluxConfig(p.httpPort, rpc, dir, opt.MaxBodySize)), 0o644); err != nil {
+	if err := os.WriteFile(conf, []byte(InfluxConfig(p.httpPort, rpc, dir, opt.MaxBodySize, !opt.NoFlux)), 0o644); err != nil {
 		t.Fatalf("testenv: influxdb config: %v", err)
 	}
 	p.proc = &process{
@@ -77,8 +81,9 @@ func StartInfluxWith(t testing.TB, opt InfluxOptions) *InfluxProcess {
 // off, HTTP on 127.0.0.1:httpPort with Flux on and authentication off,
 // the RPC (backup) listener on 127.0.0.1:rpcPort instead of the default
 // 8088, the internal monitor store off, data under dir and quiet logs.
-// maxBody 0 keeps the default request body limit.
-func InfluxConfig(httpPort, rpcPort int, dir string, maxBody int) string {
+// maxBody 0 keeps the default request body limit; flux false turns Flux
+// off.
+func InfluxConfig(httpPort, rpcPort int, dir string, maxBody int, flux bool) string {
 	body := ""
 	if maxBody > 0 {
 		body = "  max-body-size = " + strconv.Itoa(maxBody) + "\n"
@@ -101,7 +106,7 @@ bind-address = "127.0.0.1:%d"
   auth-enabled = false
   log-enabled = false
   suppress-write-log = true
-  flux-enabled = true
+  flux-enabled = %t
   flux-log-enabled = false
   pprof-enabled = false
 %s[logging]
@@ -109,7 +114,7 @@ bind-address = "127.0.0.1:%d"
   suppress-logo = true
 [continuous_queries]
   enabled = false
-`, rpcPort, filepath.Join(dir, "meta"), filepath.Join(dir, "data"), filepath.Join(dir, "wal"), httpPort, body)
+`, rpcPort, filepath.Join(dir, "meta"), filepath.Join(dir, "data"), filepath.Join(dir, "wal"), httpPort, flux, body)
 }
 
 // URL returns http://127.0.0.1:PORT.

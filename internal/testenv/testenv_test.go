@@ -45,7 +45,7 @@ func TestPrivateServers(t *testing.T) {
 	m.Start()
 	mqttConnect(t, m.Addr())
 
-	p := StartInflux(t)
+	p := StartInfluxWith(t, InfluxOptions{NoFlux: true})
 	roundTrip(t, p.URL(), p.Server().DB)
 	p.Stop()
 	if err := ping(p.URL()); err == nil {
