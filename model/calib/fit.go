@@ -105,7 +105,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 			cur, theta = st0, theta0
 			break
 		}
-		cur, theta, A, g, err = m.levenberg(ctx, b, cur, theta, free, J, A, g, res, logf)
+		cur, theta, A, g, err = m.levenberg(ctx, b, cur, theta, free, J, A, g, res, logf, noTrial, s.MaxIterations)
 		if err != nil {
 			return nil, err
 		}
@@ -179,7 +179,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 
 	// Closed-valve and topology check.
 	if s.SuspectCandidates > 0 {
-		sus, err := m.suspects(ctx, b, cur, scale)
+		sus, err := m.suspects(ctx, b, cur, st0, free, scale)
 		if err != nil {
 			return nil, err
 		}
@@ -409,7 +409,7 @@ func (m *model) identify(A *mat.SymDense, free []bool, _ []float64) {
 // Marquardt 1963) from cur on the free parameters, within their bounds
 // (projected steps; a parameter on a bound whose gradient pushes out is
 // held for that step). It leaves J, A and g at the returned state.
-func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []float64, free []bool, J *mat.Dense, A *mat.SymDense, g []float64, res *Result, logf func(string, ...any)) (*state, []float64, *mat.SymDense, []float64, error) {
+func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []float64, free []bool, J *mat.Dense, A *mat.SymDense, g []float64, res *Result, logf func(string, ...any), tr trial, maxIter int) (*state, []float64, *mat.SymDense, []float64, error) {
 	np := len(m.params)
 	theta = append([]float64(nil), theta...)
 	objective := func(st *state, th []float64) float64 {
@@ -425,7 +425,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 	cost := objective(cur, theta)
 	lambda := 1e-3
 	res.Status = IterationLimit
-	for it := 0; it < m.set.MaxIterations; it++ {
+	for it := 0; it < maxIter; it++ {
 		res.Iterations++
 		// Gradient of −½ objective: JᵀWr − P(θ − prior).
 		rhs := make([]float64, np)
@@ -472,7 +472,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 				res.Status = Converged
 				return cur, theta, A, g, nil
 			}
-			trial, err := m.evaluate(ctx, b, trialTheta, cur, noTrial)
+			trial, err := m.evaluate(ctx, b, trialTheta, cur, tr)
 			res.Evaluations++
 			tcost := math.Inf(1)
 			if err == nil {

@@ -17,36 +17,52 @@ import (
 // candidate link; +Inf shuts it.
 var suspectFactors = []float64{3, 10, 100, 1000, math.Inf(1)}
 
+// refitCandidates is how many scanned links are refitted, and
+// refitIterations the Levenberg-Marquardt iterations of each refit.
+const (
+	refitCandidates = 8
+	refitIterations = 4
+)
+
 // suspects runs the closed-valve and topology check on the fitted state
 // cur of batch b: a screen of every link by the linearised fit of a
 // log-resistance increase to the remaining residuals, then full solves
 // of the best candidates at rising resistance factors on a subset of the
 // snapshots. scale holds the sensors' noise factors.
-func (m *model) suspects(ctx context.Context, b *batch, cur *state, scale []float64) ([]Suspect, error) {
+func (m *model) suspects(ctx context.Context, b *batch, cur, prior *state, free []bool, scale []float64) ([]Suspect, error) {
 	nl := len(m.net.Links)
 	J := mat.NewDense(max(1, b.rows), max(1, len(m.params)), nil)
-	screen := &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
-	if err := m.jacobian(ctx, b, cur, J, scale, screen); err != nil {
-		return nil, err
-	}
 	type cand struct {
 		link  int
 		score float64
 	}
+	// Screen at the fitted state and at the recorded one: the fit may
+	// have bent roughness to mimic a shut valve, hiding part of its mark.
+	seen := map[int]bool{}
 	var cands []cand
-	for l := range m.net.Links {
-		lk := &m.net.Links[l]
-		if lk.Kind == network.Pump || lk.Status == network.Closed || screen.h[l] <= 0 {
-			continue
+	for _, st := range []*state{cur, prior} {
+		screen := &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
+		if err := m.jacobian(ctx, b, st, J, scale, screen); err != nil {
+			return nil, err
 		}
-		if screen.g[l] <= 0 { // only a resistance increase
-			continue
+		var cs []cand
+		for l := range m.net.Links {
+			lk := &m.net.Links[l]
+			if lk.Kind == network.Pump || lk.Status == network.Closed || screen.h[l] <= 0 {
+				continue
+			}
+			if screen.g[l] <= 0 { // only a resistance increase
+				continue
+			}
+			cs = append(cs, cand{l, screen.g[l] * screen.g[l] / screen.h[l]})
 		}
-		cands = append(cands, cand{l, screen.g[l] * screen.g[l] / screen.h[l]})
-	}
-	sort.SliceStable(cands, func(a, c int) bool { return cands[a].score > cands[c].score })
-	if len(cands) > m.set.SuspectCandidates {
-		cands = cands[:m.set.SuspectCandidates]
+		sort.SliceStable(cs, func(a, c int) bool { return cs[a].score > cs[c].score })
+		for _, c := range cs[:min(len(cs), m.set.SuspectCandidates)] {
+			if !seen[c.link] {
+				seen[c.link] = true
+				cands = append(cands, c)
+			}
+		}
 	}
 	if len(cands) == 0 {
 		return nil, nil
@@ -94,10 +110,15 @@ func (m *model) suspects(ctx context.Context, b *batch, cur *state, scale []floa
 	}
 	baseS := perSensor(base.r)
 	baseCost := sum(baseS)
-	var out []Suspect
+	// Scan with the fitted parameters held.
+	type scanned struct {
+		link int
+		f    float64
+		cost float64
+	}
+	var scans []scanned
 	for _, c := range cands {
 		bestF, bestCost := 1.0, baseCost
-		var bestR []float64
 		for _, f := range suspectFactors {
 			st, err := m.evaluate(ctx, sb, cur.theta, base, trial{link: c.link, factor: f})
 			if err != nil {
@@ -107,14 +128,67 @@ func (m *model) suspects(ctx context.Context, b *batch, cur *state, scale []floa
 				continue // e.g. shutting it cuts junctions off
 			}
 			if cst := sum(perSensor(st.r)); cst < bestCost {
-				bestF, bestCost, bestR = f, cst, st.r
+				bestF, bestCost = f, cst
+			}
+		}
+		if bestCost < baseCost {
+			scans = append(scans, scanned{c.link, bestF, bestCost})
+		}
+	}
+	sort.SliceStable(scans, func(a, c int) bool { return scans[a].cost < scans[c].cost })
+	// The best few are refitted with the link's resistance raised, so
+	// that roughness bent to mimic the valve can move back.
+	var out []Suspect
+	np := len(m.params)
+	refit := func(tr trial) (*state, error) {
+		st, err := m.evaluate(ctx, sb, cur.theta, base, tr)
+		if err != nil {
+			return nil, err
+		}
+		Jt := mat.NewDense(max(1, sb.rows), max(1, np), nil)
+		if err := m.jacobian(ctx, sb, st, Jt, nil, nil); err != nil {
+			return nil, err
+		}
+		A, g := normal(Jt, sb.w, st.r, np)
+		var dummy Result
+		fitted, _, _, _, err := m.levenberg(ctx, sb, st, cur.theta, free, Jt, A, g, &dummy, func(string, ...any) {}, tr, refitIterations)
+		return fitted, err
+	}
+	// The baseline is refitted the same way, so that only the link's
+	// change counts, not the refit on fewer snapshots.
+	if len(scans) > 0 {
+		st, err := refit(noTrial)
+		if err != nil {
+			return nil, err
+		}
+		baseS = perSensor(st.r)
+		baseCost = sum(baseS)
+		base.r = st.r
+	}
+	for _, sc := range scans[:min(len(scans), refitCandidates)] {
+		factors := []float64{sc.f}
+		if !math.IsInf(sc.f, 1) {
+			factors = append(factors, math.Inf(1))
+		}
+		bestF, bestCost := 1.0, baseCost
+		var bestR []float64
+		for _, f := range factors {
+			fitted, err := refit(trial{link: sc.link, factor: f})
+			if err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
+				continue
+			}
+			if cst := sum(perSensor(fitted.r)); cst < bestCost {
+				bestF, bestCost, bestR = f, cst, fitted.r
 			}
 		}
 		drop := baseCost - bestCost
 		if bestF < m.set.SuspectFactor || drop < math.Max(25, 0.05*baseCost) {
 			continue
 		}
-		out = append(out, m.suspect(c.link, bestF, baseCost, bestCost, baseS, perSensor(bestR), sb, base.r, bestR, cur))
+		out = append(out, m.suspect(sc.link, bestF, baseCost, bestCost, baseS, perSensor(bestR), sb, base.r, bestR, cur))
 	}
 	sort.SliceStable(out, func(a, c int) bool {
 		return out[a].MisfitBefore-out[a].MisfitAfter > out[c].MisfitBefore-out[c].MisfitAfter
