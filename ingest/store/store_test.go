@@ -2,6 +2,7 @@ package store
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -10,7 +11,9 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"sort"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
@@ -227,7 +230,7 @@ func TestReadStops(t *testing.T) {
 // rate and comes back later. Every point ends up in the store exactly
 // once, in order, and meanwhile they waited on disk.
 func TestOutageUnderLoad(t *testing.T) {
-	inf := testenv.StartInflux(t)
+	inf := testenv.StartInfluxWith(t, testenv.InfluxOptions{NoFlux: true})
 	cfg := serverConfig(inf.Server())
 	h := startWriter(t, cfg, t.TempDir())
 
@@ -250,17 +253,20 @@ func TestOutageUnderLoad(t *testing.T) {
 	}()
 	var maxSpooled int64
 	stopped, restarted := false, false
+	var stoppedAt time.Time
 	for n := range progress {
 		if !stopped && n >= 10000 {
 			// SIGKILL, like a crash: what InfluxDB acknowledged is in its
 			// WAL, what it did not is still in our spool.
 			inf.Kill()
-			stopped = true
+			stopped, stoppedAt = true, time.Now()
 		}
 		if stopped && !restarted && n >= 40000 {
 			if d := h.w.Stats().SpoolPoints; d > maxSpooled {
 				maxSpooled = d
 			}
+			// Keep the outage going for at least 1.5 s of retries.
+			time.Sleep(time.Until(stoppedAt.Add(1500 * time.Millisecond)))
 			inf.Start()
 			restarted = true
 		}
@@ -278,10 +284,7 @@ func TestOutageUnderLoad(t *testing.T) {
 	if st.DeadLettered != 0 {
 		t.Fatalf("DeadLettered = %d, want 0", st.DeadLettered)
 	}
-	src, _ := NewSource(cfg)
-	defer src.Close()
-	got := readAll(t, src, t0, t0.Add(24*time.Hour), nil)
-	sameReadings(t, got, rs) // rs is already in time, sensor order
+	sameReadings(t, influxQLReadings(t, inf.Server()), rs) // rs is already in time, sensor order
 }
 
 // A writer stopped in the middle leaves the rest in the spool; a new
@@ -345,7 +348,7 @@ func TestPartialWriteDeadLetter(t *testing.T) {
 // A server with a small body limit answers 413; the writer halves the
 // batch until it fits and loses nothing.
 func TestBodyTooLargeSplits(t *testing.T) {
-	inf := testenv.StartInfluxWith(t, testenv.InfluxOptions{MaxBodySize: 4000})
+	inf := testenv.StartInfluxWith(t, testenv.InfluxOptions{MaxBodySize: 4000, NoFlux: true})
 	cfg := serverConfig(inf.Server())
 	h := startWriter(t, cfg, t.TempDir())
 	rs := readings(2000, 5, time.Second) // about 180 kB of line protocol
@@ -354,13 +357,61 @@ func TestBodyTooLargeSplits(t *testing.T) {
 	}
 	h.drain(t, 60*time.Second)
 	st := h.w.Stats()
-	t.Logf("stats %+v", st)
 	if st.Batches < 2000*90/4000 || st.DeadLettered != 0 {
 		t.Fatalf("Stats = %+v: want the batch split into many requests and nothing dead-lettered", st)
 	}
-	src, _ := NewSource(cfg)
-	defer src.Close()
-	sameReadings(t, readAll(t, src, t0, t0.Add(time.Hour), nil), rs)
+	sameReadings(t, influxQLReadings(t, inf.Server()), rs)
+}
+
+// influxQLReadings returns every reading in the server's database with
+// InfluxQL (for private servers started without Flux), sorted by time
+// and sensor.
+func influxQLReadings(t testing.TB, srv testenv.InfluxServer) []telemetry.Reading {
+	t.Helper()
+	q := url.Values{"db": {srv.DB}, "epoch": {"ns"}, "q": {`SELECT "value", "sensor", "unit" FROM "reading"`}}
+	resp, err := http.Get(srv.URL + "/query?" + q.Encode())
+	if err != nil {
+		t.Fatalf("InfluxQL query: %v", err)
+	}
+	defer resp.Body.Close()
+	var res struct {
+		Results []struct {
+			Error  string
+			Series []struct {
+				Columns []string
+				Values  [][]any
+			}
+		}
+	}
+	dec := json.NewDecoder(resp.Body)
+	dec.UseNumber()
+	if err := dec.Decode(&res); err != nil {
+		t.Fatalf("InfluxQL answer: %v", err)
+	}
+	var out []telemetry.Reading
+	for _, r := range res.Results {
+		if r.Error != "" {
+			t.Fatalf("InfluxQL: %s", r.Error)
+		}
+		for _, s := range r.Series {
+			if !slices.Equal(s.Columns, []string{"time", "value", "sensor", "unit"}) {
+				t.Fatalf("InfluxQL columns %v", s.Columns)
+			}
+			for _, row := range s.Values {
+				tn, ok1 := row[0].(json.Number)
+				vn, ok2 := row[1].(json.Number)
+				sensor, ok3 := row[2].(string)
+				unit, _ := row[3].(string)
+				ns, err1 := tn.Int64()
+				v, err2 := strconv.ParseFloat(string(vn), 64)
+				if !ok1 || !ok2 || !ok3 || err1 != nil || err2 != nil {
+					t.Fatalf("InfluxQL row %v: %v %v", row, err1, err2)
+				}
+				out = append(out, telemetry.Reading{Sensor: sensor, Time: time.Unix(0, ns).UTC(), Value: v, Unit: unit})
+			}
+		}
+	}
+	return sortedCopy(out)
 }
 
 // Result measurements go through the same path as generic points.
@@ -421,7 +472,7 @@ func BenchmarkWrite(b *testing.B) {
 // is down and reports the live heap growth per 100,000 spooled points:
 // flat memory means this stays near zero however long the outage.
 func BenchmarkOutageMemory(b *testing.B) {
-	inf := testenv.StartInflux(b)
+	inf := testenv.StartInfluxWith(b, testenv.InfluxOptions{NoFlux: true})
 	cfg := serverConfig(inf.Server())
 	inf.Stop()
 	h := startWriter(b, cfg, b.TempDir())
