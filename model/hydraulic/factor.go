@@ -22,6 +22,7 @@ type pivotError struct {
 	pivot float64
 }
 
+// Error names the matrix row.
 func (e *pivotError) Error() string {
 	return fmt.Sprintf("matrix not positive definite at row %d (pivot %g)", e.row, e.pivot)
 }

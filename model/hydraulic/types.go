@@ -172,6 +172,7 @@ type NotConvergedError struct {
 	Runaway []string
 }
 
+// Error says how far the solve got and names the links and junctions.
 func (e *NotConvergedError) Error() string {
 	run := ""
 	if len(e.Runaway) > 0 {
@@ -194,6 +195,7 @@ type DisconnectedError struct {
 	Count int
 }
 
+// Error names the cut-off junctions.
 func (e *DisconnectedError) Error() string {
 	more := ""
 	if e.Count > len(e.Junctions) {
