@@ -32,8 +32,16 @@ func sensNet(withPRV bool) *network.Network {
 // derivatives against central finite differences of full solves (the
 // check of gonum optimize/functions: derivatives against differences).
 func TestSensitivitiesAgainstFiniteDifferences(t *testing.T) {
-	for _, withPRV := range []bool{false, true} {
+	for variant, withPRV := range []bool{false, true, false} {
 		net := sensNet(withPRV)
+		if variant == 2 {
+			// Darcy-Weisbach pipes and a pump in place of the feed main.
+			net.Headloss = network.DarcyWeisbach
+			for k := range net.Links {
+				net.Links[k].Roughness = 0.1
+			}
+			net.Links[0] = network.Link{ID: "PU", Kind: network.Pump, From: 0, To: 1, Curve: [][2]float64{{0, 30}, {20, 27}, {40, 18}}}
+		}
 		s, err := NewSolver(net, Options{FlowTolerance: 1e-10, ImbalanceTolerance: 1e-12})
 		if err != nil {
 			t.Fatal(err)
@@ -44,6 +52,12 @@ func TestSensitivitiesAgainstFiniteDifferences(t *testing.T) {
 		}
 		if withPRV {
 			stateOf(t, base, 4, Active)
+		}
+		if variant == 2 {
+			stateOf(t, base, 0, Open)
+			if base.Flow[0] < 1 {
+				t.Fatalf("pump flow %g: the variant does not exercise the pump", base.Flow[0])
+			}
 		}
 		obs := []Observation{NodeObservation(3), NodeObservation(5), NodeObservation(6), NodeObservation(0),
 			LinkObservation(1), LinkObservation(4), LinkObservation(6), LinkObservation(0)}
