@@ -4,6 +4,7 @@ import (
 	"math"
 	"testing"
 
+	"plumbline/model/netgen"
 	"plumbline/model/network"
 )
 
@@ -127,4 +128,93 @@ func TestSensitivitiesAgainstFiniteDifferences(t *testing.T) {
 			}
 		}
 	}
+}
+
+// TestSensitivitiesDemoTown repeats the finite-difference check on the
+// generated demo town (pumped zone, tank, an active pressure-reducing
+// valve, closed boundary valves) for a sample of junctions and links.
+func TestSensitivitiesDemoTown(t *testing.T) {
+	net, err := netgen.DemoTown()
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := NewSolver(net, Options{FlowTolerance: 1e-9, ImbalanceTolerance: 1e-10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	base, err := s.Solve(nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var obs []Observation
+	var junctions []int
+	for i, n := range net.Nodes {
+		if n.Kind == network.Junction && i%37 == 0 {
+			junctions = append(junctions, i)
+			if len(obs) < 6 {
+				obs = append(obs, NodeObservation(i))
+			}
+		}
+	}
+	var links []int
+	for k, l := range net.Links {
+		if base.State[k] == Open && l.Kind == network.Pipe && k%41 == 0 {
+			links = append(links, k)
+		}
+		if l.Kind != network.Pipe && len(obs) < 10 && base.State[k] != Closed {
+			obs = append(obs, LinkObservation(k)) // the pump and the valve
+		}
+	}
+	sens, err := s.Sensitivities(base, obs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	value := func(sol *Solution, o Observation) float64 {
+		if o.Node >= 0 {
+			return sol.Head[o.Node]
+		}
+		return sol.Flow[o.Link]
+	}
+	demand := make([]float64, len(net.Nodes))
+	for i := range demand {
+		demand[i] = net.Nodes[i].Demand
+	}
+	const dq = 1e-3
+	for _, i := range junctions {
+		var v [2]*Solution
+		for si, sign := range []float64{1, -1} {
+			d := append([]float64(nil), demand...)
+			d[i] += sign * dq
+			if v[si], err = s.Solve(&Conditions{Demand: d}, base); err != nil {
+				t.Fatal(err)
+			}
+		}
+		for k, o := range obs {
+			fd := (value(v[0], o) - value(v[1], o)) / (2 * dq)
+			if got := sens.Outflow[k][i]; math.Abs(got-fd) > 1e-5+1e-3*math.Abs(fd) {
+				t.Errorf("d obs %+v / d outflow at %s: adjoint %.6g, finite difference %.6g", o, net.Nodes[i].ID, got, fd)
+			}
+		}
+	}
+	const de = 1e-4
+	for _, l := range links {
+		var v [2]*Solution
+		for si, sign := range []float64{1, -1} {
+			f := make([]float64, len(net.Links))
+			for j := range f {
+				f[j] = 1
+			}
+			f[l] = math.Exp(sign * de)
+			if v[si], err = s.Solve(&Conditions{ResistanceFactor: f}, base); err != nil {
+				t.Fatal(err)
+			}
+		}
+		for k, o := range obs {
+			fd := (value(v[0], o) - value(v[1], o)) / (2 * de)
+			if got := sens.Resistance[k][l]; math.Abs(got-fd) > 1e-5+1e-3*math.Abs(fd) {
+				t.Errorf("d obs %+v / d ln φ of %s: adjoint %.6g, finite difference %.6g", o, net.Links[l].ID, got, fd)
+			}
+		}
+	}
+	t.Logf("%d observations × %d junctions and %d links checked", len(obs), len(junctions), len(links))
 }
