@@ -82,7 +82,7 @@
 //
 // ("grid+" is the full 5-point grid with 5 % diagonals and n/500 long random
 // links, nnz(L) ≈ 3.5 million.) A dense gonum Cholesky of order 2000 takes
-// about 2 s on the same machine.
+// 0.5 to 3.5 s (wall) on the same machine, depending on its load.
 //
 // # Memory ownership
 //
