@@ -428,6 +428,11 @@ func (r *runner) run(ctx context.Context, emit func(Reading) error, opt Options)
 			}
 		}
 		sol, err := r.solver.Solve(c, prev)
+		if err != nil && prev != nil {
+			// A warm start far from a new state (a pump switched, a burst)
+			// can stall Newton's method; start cold once.
+			sol, err = r.solver.Solve(c, nil)
+		}
 		if err != nil {
 			return res, fmt.Errorf("simulation at %s: %w", t.Format(time.RFC3339), err)
 		}
