@@ -39,17 +39,21 @@
 // Measured nonzeros of L (diagonal included) on the generated test graphs
 // (bench_test.go; "network" is a street grid with a quarter of the segments
 // missing, 5 % diagonals and n/500 long random links, average degree ≈ 3.1;
-// "grid" is the full 5-point grid):
+// "grid+" the full 5-point grid with the same diagonals and links; "grid"
+// the plain 5-point grid):
 //
-//	graph          n       edges    minimum degree   RCM          natural
-//	network     1 024      1 540        5 570          17 343        23 012
-//	grid        1 024      1 984       11 895          23 344        32 799
-//	network    10 000     15 604       79 643       1 158 924       758 758
-//	grid       10 000     19 800      197 764         681 550     1 000 099
-//	network    99 856    157 205    1 192 488     117 387 625            —
-//	grid       99 856    199 080    2 974 387      21 185 746            —
+//	graph          n       edges    minimum degree   RCM           natural
+//	network     1 024      1 540        5 570           17 343        23 012
+//	grid+       1 024      2 036       12 246           29 558        33 891
+//	grid        1 024      1 984       11 895           23 344        32 799
+//	network    10 000     15 604       79 906        1 158 924       758 758
+//	grid+      10 000     20 298      209 212        1 742 297     1 075 757
+//	grid       10 000     19 800      196 600          681 550     1 000 099
+//	network    99 856    157 205    1 185 301      117 387 625             —
+//	grid+      99 856    204 320    3 484 235      191 361 875             —
+//	grid       99 856    199 080    2 971 294       21 185 746             —
 //
-// Minimum degree wins everywhere, by a factor 100 on the large network
+// Minimum degree wins everywhere, by a factor 50 to 100 on the large networks
 // (random long links destroy any band), hence the default. RCM is kept for
 // comparison and as a fallback.
 //
