@@ -319,7 +319,7 @@ func (f *Fields) Decode(p []byte, s *Sample) error {
 // slice when it has escapes, else aliasing p.
 func stringBody(p []byte, sp span) []byte {
 	body := p[sp.start+1 : sp.end-1]
-	if sp.escaped {
+	if sp.escaped || badUTF8(body) {
 		return unescape(nil, body)
 	}
 	return body

@@ -202,7 +202,7 @@ func (w *walker) object(i, depth int, mask uint8) (int, error) {
 		var child uint8
 		if mask != 0 {
 			key := d[i+1 : kend-1]
-			if esc {
+			if esc || badUTF8(key) {
 				key = unescape(keyBuf[:0], key)
 			}
 			for b := 0; b < w.n; b++ {
@@ -338,6 +338,17 @@ func hex4(b []byte) rune {
 		}
 	}
 	return r
+}
+
+// badUTF8 reports whether b is not valid UTF-8 (encoding/json replaces
+// such bytes with U+FFFD; so do we, through unescape).
+func badUTF8(b []byte) bool {
+	for _, c := range b {
+		if c >= utf8.RuneSelf {
+			return !utf8.Valid(b)
+		}
+	}
+	return false
 }
 
 // unescape appends the decoded content of a validated string body (without
