@@ -99,7 +99,7 @@ func TestTLSClientCert(t *testing.T) {
 	if err := srv.Serve(); err != nil {
 		t.Fatal(err)
 	}
-	defer srv.Close()
+	t.Cleanup(func() { _ = srv.Close() }) // after the clients (see TestEmbeddedBroker)
 	url := "ssl://" + ln.Address()
 
 	sensors := []telemetry.Sensor{{ID: "P-1", Quantity: telemetry.Pressure, Topic: "s/P-1", Unit: "kPa"}}
