@@ -39,13 +39,14 @@ type Settings struct {
 	// Reaching it is Status IterationLimit, not an error.
 	MaxIterations int
 	// Tolerance is the relative fall of the weighted misfit below which
-	// an accepted step ends the fit (Status Converged); default 1e-5.
+	// an accepted step ends the fit (Status Converged); default 1e-4.
 	Tolerance float64
 	// Interval is the spacing of the snapshots used: from each interval
 	// (counted from midnight UTC) the first snapshot is kept; default 1 h.
 	Interval time.Duration
 	// MaxSnapshots caps the snapshots of the fit (not of validation);
-	// default 336 (14 days of hourly snapshots). Beyond it the snapshots
+	// default 168 (a week of hourly snapshots; of a longer window seven
+	// per hour of the day, spread over its demand levels). Beyond it the snapshots
 	// are chosen per hour bin and spread over the demand levels seen in
 	// that bin.
 	MaxSnapshots int
@@ -89,7 +90,7 @@ type Settings struct {
 	// with full solves; default 8. A negative value skips the check.
 	SuspectCandidates int
 	// SuspectSnapshots is how many fit snapshots it solves per trial;
-	// default 24.
+	// default 12.
 	SuspectSnapshots int
 	// Workers is the number of goroutines that solve snapshots, each with
 	// its own solver; default min(2, GOMAXPROCS).
@@ -103,13 +104,13 @@ func (s Settings) withDefaults() Settings {
 		s.MaxIterations = 30
 	}
 	if s.Tolerance <= 0 {
-		s.Tolerance = 1e-5
+		s.Tolerance = 1e-4
 	}
 	if s.Interval <= 0 {
 		s.Interval = time.Hour
 	}
 	if s.MaxSnapshots <= 0 {
-		s.MaxSnapshots = 336
+		s.MaxSnapshots = 168
 	}
 	if s.HoldOut == 0 {
 		s.HoldOut = 0.2
@@ -151,7 +152,7 @@ func (s Settings) withDefaults() Settings {
 		s.SuspectCandidates = 8
 	}
 	if s.SuspectSnapshots <= 0 {
-		s.SuspectSnapshots = 24
+		s.SuspectSnapshots = 12
 	}
 	if s.Workers <= 0 {
 		s.Workers = min(2, runtime.GOMAXPROCS(0))

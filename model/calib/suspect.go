@@ -15,13 +15,13 @@ import (
 
 // suspectFactors are the resistance factors the check tries on each
 // candidate link; +Inf shuts it.
-var suspectFactors = []float64{3, 10, 100, 1000, math.Inf(1)}
+var suspectFactors = []float64{10, 1000, math.Inf(1)}
 
 // refitCandidates is how many scanned links are refitted, and
 // refitIterations the Levenberg-Marquardt iterations of each refit.
 const (
 	refitCandidates = 8
-	refitIterations = 4
+	refitIterations = 3
 )
 
 // suspects runs the closed-valve and topology check on the fitted state
