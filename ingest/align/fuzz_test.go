@@ -24,7 +24,7 @@ func FuzzAlignOrder(f *testing.F) {
 		var arr []arrival
 		end := t0
 		for len(data) >= 6 {
-			at := time.Duration(binary.LittleEndian.Uint16(data[0:2])) * time.Second
+			at := time.Duration(binary.LittleEndian.Uint16(data[0:2])%3600) * time.Second
 			v := float64(int8(data[2])) / 4
 			delay := time.Duration(int64(data[3]) * int64(late) / 256)
 			r := telemetry.Reading{Sensor: sensors[int(data[4])%3].ID, Time: t0.Add(at), Value: v}
