@@ -16,5 +16,11 @@ test:
 bench:
 	$(GO) test -run '^$$' -bench . -benchmem -timeout 30m ./...
 
+# Detection benchmark: every scenario of testdata/scenarios/suite.tsv in
+# the exact and the realistic condition, simulate -> replay -> score, one
+# table per condition beside the targets (scripts/bench-detect.sh).
+bench-detect:
+	GO=$(GO) scripts/bench-detect.sh
+
 vet:
 	$(GO) vet ./...

@@ -1,0 +1,85 @@
+#!/usr/bin/env bash
+# Detection benchmark: every scenario of testdata/scenarios/suite.tsv in
+# both conditions (exact model; realistic: 5-minute logging, 0.01 m
+# pressure resolution, true network off by up to 10 %), each through
+# simulate -> replay -> score --json, then one table per condition with
+# the measuring-stick targets beside the measured figures
+# (scripts/benchdetect).
+#
+# Usage: scripts/bench-detect.sh            (or: make bench-detect)
+# Environment:
+#   GO           go command (default go)
+#   BENCH_JOBS   parallel runs (default 2: one per core on a 2-core box)
+#   BENCH_ONLY   run only manifest lines matching this extended regexp
+#                (e.g. 'demo.*leak'); the table then covers those alone
+#   BENCH_KEEP   1: keep the work folder (truth, findings, scores, logs;
+#                readings are always removed: rerun simulate to get them)
+set -euo pipefail
+
+cd "$(dirname "$0")/.."
+GO=${GO:-go}
+JOBS=${BENCH_JOBS:-2}
+ONLY=${BENCH_ONLY:-}
+suite=testdata/scenarios/suite.tsv
+
+work=$(mktemp -d "${TMPDIR:-/tmp}/bench-detect.XXXXXX")
+if [[ "${BENCH_KEEP:-0}" == 1 ]]; then
+	echo "bench-detect: work folder $work (kept)" >&2
+else
+	trap 'rm -rf "$work"' EXIT
+fi
+
+started=$(date +%s)
+echo "bench-detect: building" >&2
+"$GO" build -o "$work/plumbline" ./daemon
+"$GO" build -o "$work/benchdetect" ./scripts/benchdetect
+# The realistic condition's true networks (the 5k one is too large to
+# commit; the demo's is also committed for runs by hand).
+"$GO" run ./testdata/scenarios/gen -true-networks "$work/true"
+
+grep -v '^#' "$suite" | { if [[ -n "$ONLY" ]]; then grep -E -- "$ONLY" || true; else cat; fi; } >"$work/runs.tsv"
+total=$(wc -l <"$work/runs.tsv")
+if [[ "$total" -eq 0 ]]; then
+	echo "bench-detect: no run matches BENCH_ONLY=$ONLY" >&2
+	exit 1
+fi
+echo "bench-detect: $total runs, $JOBS at a time, in $work" >&2
+
+# one_run runs one manifest line; a failure is recorded in the run's
+# folder (file "failed") and does not stop the others.
+one_run() {
+	local net=$1 cond=$2 scen=$3 network=$4 config=$5 from=$6 to=$7
+	local name dir t0 truenet=()
+	name=$(basename "$scen" .yaml)
+	dir="$WORK/res/$net/$cond/$name"
+	mkdir -p "$dir"
+	t0=$(date +%s)
+	if [[ "$cond" == realistic ]]; then
+		truenet=(--true-network "$WORK/true/true-$net.geojson")
+	fi
+	if "$WORK/plumbline" simulate --network "$network" --scenario "$scen" "${truenet[@]}" \
+		--out "$dir/readings.csv" --truth "$dir/truth.json" >"$dir/simulate.log" 2>&1 &&
+		"$WORK/plumbline" replay --config "$config" --source "$dir/readings.csv" \
+			--findings "$dir/findings.json" --no-store --quiet >"$dir/replay.log" 2>&1 &&
+		"$WORK/plumbline" score --truth "$dir/truth.json" --findings "$dir/findings.json" \
+			--network "$network" --from "$from" --to "$to" --json >"$dir/score.json.part" 2>"$dir/score.log"; then
+		mv "$dir/score.json.part" "$dir/score.json"
+		status=ok
+	else
+		cat "$dir"/*.log >"$dir/failed" 2>/dev/null || true
+		status=FAILED
+	fi
+	rm -f "$dir/readings.csv"
+	echo "bench-detect: $net/$cond/$name $status in $(($(date +%s) - t0)) s" >&2
+}
+export -f one_run
+export WORK="$work"
+
+# xargs keeps at most $JOBS runs going; each line is one run's 7 fields.
+tr '\t' '\n' <"$work/runs.tsv" | xargs -d '\n' -n 7 -P "$JOBS" bash -c 'one_run "$@"' _
+
+echo "bench-detect: runs done in $(($(date +%s) - started)) s" >&2
+{ head -2 "$suite"; cat "$work/runs.tsv"; } >"$work/suite.tsv"
+"$work/benchdetect" -suite "$work/suite.tsv" -results "$work/res"
+echo
+echo "($total runs on $(nproc) cores, $JOBS at a time, in $(($(date +%s) - started)) s)"

@@ -1,0 +1,280 @@
+package main
+
+import (
+	"bufio"
+	"bytes"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"plumbline/daemon/config"
+	"plumbline/model/finding"
+	"plumbline/model/network"
+	scen "plumbline/model/scenario"
+	"plumbline/model/telemetry"
+)
+
+// repo is the repository root seen from this package's folder.
+const repo = "../../.."
+
+// TestCommittedSuiteIsGenerated regenerates the suite into a temporary
+// folder and compares it byte for byte with the committed files: the
+// suite is deterministic and nobody edited it by hand.
+func TestCommittedSuiteIsGenerated(t *testing.T) {
+	out := t.TempDir()
+	if err := run(repo, out, ""); err != nil {
+		t.Fatalf("run: %v", err)
+	}
+	n := 0
+	err := filepath.Walk(out, func(path string, info os.FileInfo, err error) error {
+		if err != nil || info.IsDir() {
+			return err
+		}
+		rel, _ := filepath.Rel(out, path)
+		got, err := os.ReadFile(path)
+		if err != nil {
+			return err
+		}
+		want, err := os.ReadFile(filepath.Join(repo, rel))
+		if err != nil {
+			t.Errorf("%s: generated but not committed: %v", rel, err)
+			return nil
+		}
+		if !bytes.Equal(got, want) {
+			t.Errorf("%s: committed file differs from the generator's output (run go run ./testdata/scenarios/gen)", rel)
+		}
+		n++
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// And nothing stale: every committed scenario is generated.
+	for _, key := range []string{"demo", "town5k"} {
+		for _, cond := range []string{"exact", "realistic"} {
+			files, _ := filepath.Glob(filepath.Join(repo, "testdata/scenarios", key, cond, "*.yaml"))
+			for _, f := range files {
+				rel, _ := filepath.Rel(repo, f)
+				if _, err := os.Stat(filepath.Join(out, rel)); err != nil {
+					t.Errorf("%s: committed but no longer generated", rel)
+				}
+			}
+		}
+	}
+	if n == 0 {
+		t.Fatal("the generator wrote nothing")
+	}
+}
+
+type manifestLine struct{ net, cond, scenario, network, config, from, to string }
+
+func readManifest(t *testing.T) []manifestLine {
+	t.Helper()
+	f, err := os.Open(filepath.Join(repo, "testdata/scenarios/suite.tsv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	var out []manifestLine
+	sc := bufio.NewScanner(f)
+	for sc.Scan() {
+		if strings.HasPrefix(sc.Text(), "#") {
+			continue
+		}
+		c := strings.Split(sc.Text(), "\t")
+		if len(c) != 7 {
+			t.Fatalf("suite.tsv: %q: want 7 columns, got %d", sc.Text(), len(c))
+		}
+		out = append(out, manifestLine{c[0], c[1], c[2], c[3], c[4], c[5], c[6]})
+	}
+	return out
+}
+
+// TestSuiteCoversTheIssue loads every scenario of the manifest, validates
+// it against its network, and checks the suite holds what the
+// measuring-stick issue asks for.
+func TestSuiteCoversTheIssue(t *testing.T) {
+	nets := map[string]*network.Network{}
+	cfgs := map[string]*config.Config{}
+	type cover struct {
+		minLeak, maxLeak                    float64
+		bursts, rises, twoLeaks, valveBlock int
+		mainBlockLow                        int
+		faults                              map[string]bool // quantity/mode
+		quiet                               time.Duration
+		scenarios                           int
+	}
+	covers := map[string]*cover{}
+	for _, m := range readManifest(t) {
+		net, ok := nets[m.net]
+		if !ok {
+			var err error
+			if net, err = network.ReadFile(filepath.Join(repo, m.network)); err != nil {
+				t.Fatal(err)
+			}
+			nets[m.net] = net
+			if cfgs[m.net], err = config.LoadFile(filepath.Join(repo, m.config)); err != nil {
+				t.Fatal(err)
+			}
+		}
+		cfg := cfgs[m.net]
+		sc, err := scen.LoadFile(filepath.Join(repo, m.scenario))
+		if err != nil {
+			t.Errorf("%s: %v", m.scenario, err)
+			continue
+		}
+		if errs := scen.Validate(sc, net); len(errs) > 0 {
+			t.Errorf("%s: %v", m.scenario, errs)
+		}
+		key := m.net + "/" + m.cond
+		c := covers[key]
+		if c == nil {
+			c = &cover{minLeak: math.Inf(1), faults: map[string]bool{}}
+			covers[key] = c
+		}
+		c.scenarios++
+		if m.cond == "realistic" {
+			if sc.LoggingInterval != 5*time.Minute || sc.Resolution[telemetry.Pressure] != 0.01 {
+				t.Errorf("%s: realistic without 5-minute logging and 0.01 m resolution", m.scenario)
+			}
+		} else if sc.TrueNetwork != "" || len(sc.Resolution) > 0 {
+			t.Errorf("%s: exact condition with a true network or a resolution", m.scenario)
+		}
+		if len(sc.Events) == 0 {
+			c.quiet = max(c.quiet, sc.Duration)
+		}
+		leaks := 0
+		for _, e := range sc.Events {
+			if e.Start.Sub(sc.Start) < 8*24*time.Hour {
+				t.Errorf("%s: event %s starts %v after the run start, want at least 8 days of quiet history", m.scenario, e.At, e.Start.Sub(sc.Start))
+			}
+			switch e.Kind {
+			case finding.Leak:
+				leaks++
+				c.minLeak, c.maxLeak = min(c.minLeak, e.SizeLPS), max(c.maxLeak, e.SizeLPS)
+				if e.Burst {
+					c.bursts++
+				}
+				if e.Ramp >= 72*time.Hour {
+					c.rises++
+				}
+			case finding.Blockage:
+				k, _ := net.LinkIndex(e.At)
+				if net.Links[k].Kind == network.Valve {
+					c.valveBlock++
+				} else if e.OpenFraction <= 0.3 {
+					c.mainBlockLow++
+				}
+			case finding.SensorFault:
+				s, _ := cfg.Sensor(e.At)
+				c.faults[s.Quantity.String()+"/"+string(e.Mode)] = true
+			}
+		}
+		if leaks >= 2 {
+			c.twoLeaks++
+		}
+	}
+	for key, c := range covers {
+		if c.minLeak > 0.5 || c.maxLeak < 10 {
+			t.Errorf("%s: leak sizes %g to %g L/s, want 0.5 to 10", key, c.minLeak, c.maxLeak)
+		}
+		if c.bursts == 0 || c.rises == 0 || c.twoLeaks == 0 || c.mainBlockLow == 0 {
+			t.Errorf("%s: bursts %d, slow rises %d, two-leak scenarios %d, main blockages <=0.3 %d; want each > 0",
+				key, c.bursts, c.rises, c.twoLeaks, c.mainBlockLow)
+		}
+		if c.quiet < 30*24*time.Hour {
+			t.Errorf("%s: longest quiet run %v, want at least 30 days", key, c.quiet)
+		}
+	}
+	demo := covers["demo/exact"]
+	if demo == nil {
+		t.Fatal("no demo scenarios in the manifest")
+	}
+	for _, q := range []string{"pressure", "flow"} {
+		for _, mode := range []string{"stuck", "drift", "spike", "offset"} {
+			if !demo.faults[q+"/"+mode] {
+				t.Errorf("demo: no %s fault on a %s sensor", mode, q)
+			}
+		}
+	}
+	if demo.valveBlock == 0 || demo.quiet < 60*24*time.Hour {
+		t.Errorf("demo: valve blockages %d, quiet %v; want a valve blockage and 60 days of quiet", demo.valveBlock, demo.quiet)
+	}
+	if total := demo.scenarios + covers["town5k/exact"].scenarios; total < 40 {
+		t.Errorf("%d scenarios per condition, want at least 40", total)
+	}
+}
+
+// TestTown5kConfig checks the generated service configuration loads
+// without problems and instruments every zone.
+func TestTown5kConfig(t *testing.T) {
+	cfg, err := config.LoadFile(filepath.Join(repo, "configs/town-5k.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	loggers := map[string]int{}
+	for _, s := range cfg.Sensors {
+		if s.Quantity == telemetry.Pressure {
+			loggers[s.Zone]++
+		}
+	}
+	if len(cfg.Zones) != 3 {
+		t.Fatalf("got %d zones, want 3", len(cfg.Zones))
+	}
+	for _, z := range cfg.Zones {
+		if loggers[z.ID] != loggersPerZone {
+			t.Errorf("zone %s: got %d pressure loggers, want %d", z.ID, loggers[z.ID], loggersPerZone)
+		}
+		// The zone's reservoir main must be among its metered inlets.
+		fed := false
+		for _, id := range z.Inlets {
+			s, _ := cfg.Sensor(id)
+			k, _ := cfg.Network.LinkIndex(s.At)
+			if cfg.Network.Nodes[cfg.Network.Links[k].From].Kind == network.Reservoir {
+				fed = true
+			}
+		}
+		if !fed {
+			t.Errorf("zone %s: no inlet meter on a reservoir main", z.ID)
+		}
+	}
+}
+
+// TestDayFlowsMassBalance checks the day of solves that sizes the flow
+// meters by conservation of mass: over the day, the water the reservoirs
+// send out equals the water the junctions use (continuity, a physical
+// law; no leaks in the network file).
+func TestDayFlowsMassBalance(t *testing.T) {
+	net, err := network.ReadFile(filepath.Join(repo, "testdata/network/town-5k.geojson"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	mean, peak, err := dayFlows(net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var supplied, used float64
+	for k := range net.Links {
+		l := &net.Links[k]
+		if net.Nodes[l.From].Kind == network.Reservoir || net.Nodes[l.To].Kind == network.Reservoir {
+			supplied += mean[k]
+			if peak[k] < mean[k] {
+				t.Errorf("link %s: peak %g below mean %g", l.ID, peak[k], mean[k])
+			}
+		}
+	}
+	for h := 0; h < 24; h++ {
+		for i := range net.Nodes {
+			nd := &net.Nodes[i]
+			if nd.Kind == network.Junction {
+				used += nd.Demand * net.PatternValue(nd.Pattern, time.Duration(h)*time.Hour) / 24
+			}
+		}
+	}
+	if diff := math.Abs(supplied - used); diff > 1e-6*used {
+		t.Errorf("reservoirs supply %.6f L/s on average, junctions use %.6f L/s: difference %.3g, tolerance %.3g", supplied, used, diff, 1e-6*used)
+	}
+}
