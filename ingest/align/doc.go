@@ -22,6 +22,11 @@
 // least W − Lateness; then it cannot be late, which is why any arrival order
 // within the lateness gives the same snapshots.
 //
+// The watermark follows the readings' own times, so one sensor whose clock
+// runs ahead moves it for all: keep Lateness at least the ingest's
+// allowance for clocks running fast (decode.Options.MaxFuture, 5 minutes
+// by default) plus the usual transport delay.
+//
 // # Aggregates
 //
 // Within a step a sensor's readings are sorted by (time, value), repeats
