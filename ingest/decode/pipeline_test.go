@@ -218,3 +218,17 @@ func TestReasonWords(t *testing.T) {
 		t.Errorf("Reasons lists %d, want %d", len(Reasons), numReasons-1)
 	}
 }
+
+// TestDecoderPanic: a decoder that panics costs one message, not the
+// service.
+func TestDecoderPanic(t *testing.T) {
+	bad := DecoderFunc(func(p []byte, s *Sample) error { panic("index out of range (test)") })
+	p, err := NewPipeline([]telemetry.Sensor{{ID: "A", Quantity: telemetry.Flow, Topic: "a", Unit: "L/s"}},
+		Options{SensorDecoders: map[string]Decoder{"A": bad}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, r := p.Process("a", []byte("1"), time.Now()); r != Undecodable {
+		t.Errorf("reason %v, want undecodable", r)
+	}
+}

@@ -2,10 +2,16 @@ package mqtt
 
 import (
 	"bytes"
+	"fmt"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 	"time"
 
+	"github.com/rs/zerolog"
+
+	"plumbline/ingest/broker"
 	"plumbline/model/telemetry"
 )
 
@@ -37,5 +43,36 @@ func TestWriteMetrics(t *testing.T) {
 		if !strings.Contains(out, want) {
 			t.Errorf("metrics lack %q:\n%s", want, out)
 		}
+	}
+}
+
+// TestPasswordNeverLogged connects with a password file and debug logging
+// and checks that the secret appears in no log line nor in the status.
+func TestPasswordNeverLogged(t *testing.T) {
+	b, err := broker.Start(broker.Config{}, zerolog.Nop())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { _ = b.Close() })
+	pw := filepath.Join(t.TempDir(), "pw")
+	const secret = "correct-horse-battery-staple"
+	if err := os.WriteFile(pw, []byte(secret+"\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	var logs bytes.Buffer
+	log := zerolog.New(zerolog.SyncWriter(&logs)).Level(zerolog.DebugLevel) // written from several goroutines
+	pipe := newPipe(t, []telemetry.Sensor{{ID: "A", Quantity: telemetry.Flow, Topic: "a", Unit: "L/s"}})
+	c, err := New(Config{URL: b.URL(), ClientID: "pw", Username: "ops", PasswordFile: pw}, pipe, newCollector(), log)
+	if err != nil {
+		t.Fatal(err)
+	}
+	stop := runClient(t, c)
+	waitConnected(t, c)
+	stop()
+	if logs.Len() == 0 {
+		t.Fatal("no log output: the check would prove nothing")
+	}
+	if strings.Contains(logs.String(), secret) || strings.Contains(fmt.Sprintf("%+v", c.Status()), secret) {
+		t.Errorf("the password appears in the logs or status:\n%s", logs.String())
 	}
 }
