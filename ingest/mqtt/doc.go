@@ -30,7 +30,9 @@
 // reconnects. Size the queue (Config.QueueSize, default 16384) above the
 // broker's in-flight window (Mosquitto max_inflight_messages, default 20:
 // raise it, e.g. to 1000, or throughput is capped) so that at QoS 1 the
-// queue cannot overflow. While the Sink fails, Accept is retried with
+// queue cannot overflow. A message its publisher sent at QoS 0 arrives at
+// QoS 0 whatever we subscribe with, is never redelivered, and is lost if
+// dropped (still counted). While the Sink fails, Accept is retried with
 // backoff and nothing further is acknowledged.
 //
 // # Stop
