@@ -181,6 +181,7 @@ func run(w io.Writer, suitePath, results string) error {
 			return err
 		}
 	}
+	sort.Strings(conds) // exact before realistic
 	for i, c := range conds {
 		if i > 0 {
 			fmt.Fprintln(w)
