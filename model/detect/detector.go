@@ -132,16 +132,16 @@ type zoneState struct {
 	Jump         Baseline
 	Burst, Night CUSUM
 	// Repair watches the night imbalance falling back: a leak mended.
-	Repair CUSUM
-	Ring         ring
-	Nights       []float64 // adjusted mean night imbalance of quiet nights
-	NightSum     float64
-	NightN       int
-	NightMin     float64
-	NightInSum   float64
-	InNight      bool
-	NightStart   time.Time
-	Offset       float64 // shift accepted into the night baseline by earlier findings
+	Repair     CUSUM
+	Ring       ring
+	Nights     []float64 // adjusted mean night imbalance of quiet nights
+	NightSum   float64
+	NightN     int
+	NightMin   float64
+	NightInSum float64
+	InNight    bool
+	NightStart time.Time
+	Offset     float64 // shift accepted into the night baseline by earlier findings
 	// Rebase makes the next night set Offset from what it measures: the
 	// night after a finding shows the new normal (a leak's night size
 	// differs from its day size under FAVAD).
@@ -708,6 +708,7 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 		if zs.Rebase && len(zs.Nights) > 0 {
 			med, _ := nightBaseline(zs.Nights)
 			zs.Offset, zs.Rebase = x-med, false
+			zs.Repair.Reset()
 			nf.Statistic, nf.Threshold, nf.NightsUsed = zs.Night.S, zs.Night.H, len(zs.Nights)
 			out = append(out, nf)
 			continue

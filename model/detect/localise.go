@@ -94,11 +94,11 @@ func (d *Detector) refConditions(ev evidence) hydraulic.Conditions {
 // residual changes: the linear signature ranks candidates, but a valve
 // 10% open is far outside the range where it gives the size. Golden-
 // section search over f in (0.01, 1) (Kiefer 1953).
-func (d *Detector) fitOpenFraction(l int, ev evidence) float64 {
+func (d *Detector) fitOpenFraction(l int, ev evidence) (float64, float64) {
 	c := d.refConditions(ev)
 	base, err := d.solver.Solve(&c, d.prevMat)
 	if err != nil {
-		return math.NaN()
+		return math.NaN(), math.Inf(1)
 	}
 	c.ResistanceFactor = make([]float64, len(d.net.Links))
 	for i := range c.ResistanceFactor {
@@ -118,23 +118,118 @@ func (d *Detector) fitOpenFraction(l int, ev evidence) float64 {
 		}
 		return e
 	}
-	lo, hi := 0.01, 1.0
+	f, e := golden(sse, 0.01, 1, 25)
+	return f, e + ev.wI*ev.dI*ev.dI
+}
+
+// refineLeaks re-scores the best linear leak candidates with full solves:
+// the residual a leak of size q at j leaves is what the water really does
+// (the measured pressures fall by the leak at j) minus what the
+// inflow-matched model does (it spreads q over the zone's demand). Near a
+// logger a large leak is far from linear. q < 0 fits q to each candidate
+// (golden section over (0, 3·max(dI, linear size)]).
+func (d *Detector) refineLeaks(ev evidence, cands []ranked, q float64) []ranked {
+	c := d.refConditions(ev)
+	base, err := d.solver.Solve(&c, d.prevMat)
+	if err != nil {
+		return cands
+	}
+	zone := d.zones[ev.zone]
+	spread := func(qq float64) (*hydraulic.Solution, error) {
+		cc := c
+		cc.Demand = append([]float64(nil), c.Demand...)
+		total := 0.0
+		for _, j := range zone.junctions {
+			total += c.Demand[j]
+		}
+		if total > 0 {
+			for _, j := range zone.junctions {
+				cc.Demand[j] *= 1 + qq/total
+			}
+		}
+		return d.solver.Solve(&cc, base)
+	}
+	misfit := func(j int, qq float64, model *hydraulic.Solution) float64 {
+		cc := c
+		cc.Demand = append([]float64(nil), c.Demand...)
+		cc.Demand[j] += qq
+		real, err := d.solver.Solve(&cc, base)
+		if err != nil {
+			return math.Inf(1)
+		}
+		e := 0.0
+		for k, si := range ev.sensors {
+			n := d.sens[si].node
+			r := ev.dr[k] - ((real.Head[n] - base.Head[n]) - (model.Head[n] - base.Head[n]))
+			e += ev.w[k] * r * r
+		}
+		if q < 0 {
+			e += ev.wI * (ev.dI - qq) * (ev.dI - qq)
+		}
+		return e
+	}
+	out := make([]ranked, 0, len(cands))
+	var fixedModel *hydraulic.Solution
+	if q >= 0 {
+		if fixedModel, err = spread(q); err != nil {
+			return cands
+		}
+	}
+	for _, cd := range cands {
+		if q >= 0 {
+			out = append(out, ranked{idx: cd.idx, sse: misfit(cd.idx, q, fixedModel), size: q})
+			continue
+		}
+		hi := 3 * math.Max(math.Max(ev.dI, cd.size), 0.1)
+		f := func(qq float64) float64 {
+			m, err := spread(qq)
+			if err != nil {
+				return math.Inf(1)
+			}
+			return misfit(cd.idx, qq, m)
+		}
+		best, e := golden(f, 0, hi, 14)
+		out = append(out, ranked{idx: cd.idx, sse: e, size: best})
+	}
+	return out
+}
+
+// refineBlockages re-scores the best linear blockage candidates with the
+// non-linear open-fraction fit.
+func (d *Detector) refineBlockages(ev evidence, cands []ranked) []ranked {
+	out := make([]ranked, 0, len(cands))
+	for _, cd := range cands {
+		f, e := d.fitOpenFraction(cd.idx, ev)
+		out = append(out, ranked{idx: cd.idx, sse: e, size: f})
+	}
+	return out
+}
+
+// golden minimises f over [lo, hi] by golden-section search (Kiefer
+// 1953) with n narrowings; it returns the point and its value.
+func golden(f func(float64) float64, lo, hi float64, n int) (float64, float64) {
 	g := (math.Sqrt(5) - 1) / 2
 	a, b := hi-g*(hi-lo), lo+g*(hi-lo)
-	fa, fb := sse(a), sse(b)
-	for i := 0; i < 25; i++ {
+	fa, fb := f(a), f(b)
+	for i := 0; i < n; i++ {
 		if fa < fb {
 			hi, b, fb = b, a, fa
 			a = hi - g*(hi-lo)
-			fa = sse(a)
+			fa = f(a)
 		} else {
 			lo, a, fa = a, b, fb
 			b = lo + g*(hi-lo)
-			fb = sse(b)
+			fb = f(b)
 		}
 	}
-	return (lo + hi) / 2
+	if fa < fb {
+		return a, fa
+	}
+	return b, fb
 }
+
+// shortlist is how many linear candidates the non-linear fits re-score.
+const shortlist = 10
 
 func (d *Detector) signatures(ev evidence) (*signatures, error) {
 	zi, sensors := ev.zone, ev.sensors
@@ -307,8 +402,8 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.accept(zi, ev, size, now, f)
 		return true
 	}
-	leaks := d.leakFits(zi, ev, sg, size)
-	top, scores := rank(leaks, d.cfg.Candidates)
+	short, _ := rank(d.leakFits(zi, ev, sg, size), shortlist)
+	top, scores := rank(d.refineLeaks(ev, short, size), d.cfg.Candidates)
 	meterSSE := 0.0
 	for k := range ev.sensors {
 		r := ev.dr[k] + size*sg.ubar[k]
@@ -351,6 +446,11 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		ss.Down.Reset()
 		return false
 	}
+	dir := 1.0
+	if ss.Down.S > ss.Down.H {
+		dir = -1
+	}
+	onset = changePoint(&ss.Ring, onset.Add(-12*time.Hour), dir, onset)
 	ev := d.gather(zi, onset)
 	me := -1
 	for k, s := range ev.sensors {
@@ -376,23 +476,44 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 			leaks = d.leakFits(zi, ev, sg, -1)
 		}
 	}
-	bTop, bScores := rank(blocks, d.cfg.Candidates)
-	lTop, lScores := rank(leaks, d.cfg.Candidates)
+	bTop, _ := rank(blocks, shortlist)
+	lTop, _ := rank(leaks, shortlist)
+	bTop, bScores := rank(d.refineBlockages(ev, bTop), d.cfg.Candidates)
+	lq := -1.0
+	if ev.wI > 0 && ev.dI*math.Sqrt(ev.wI) > 3 {
+		lq = ev.dI // the balance moved clearly: it measures the leak
+	}
+	lTop, lScores := rank(d.refineLeaks(ev, lTop, lq), d.cfg.Candidates)
 	bestB, bestL := math.Inf(1), math.Inf(1)
-	if len(bTop) > 0 {
+	// Each explanation must matter in practice as well as fit: a blockage
+	// must move some logger by more than that logger's accuracy, and a
+	// leak must show in the zone balance (the primary leak evidence), at
+	// least two of its σ above normal.
+	if len(bTop) > 0 && d.largestChange(ev) {
 		bestB = bTop[0].sse
 	}
-	if len(lTop) > 0 && lTop[0].size > 0 {
+	if len(lTop) > 0 && lTop[0].size > 0 && ev.wI > 0 && ev.dI*math.Sqrt(ev.wI) > 2 {
 		bestL = lTop[0].sse
 	}
 	desc := describeResiduals(d, ev, 3)
 	switch {
 	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:
 		// A logger that moved by less than its own stated accuracy is not
-		// faulty enough for a visit: no finding, its baseline takes it in.
+		// faulty enough for a visit, and nothing else explains it better:
+		// no finding, its baseline takes the change in.
 		ss.Up.Reset()
 		ss.Down.Reset()
 		ss.Base.Relearn = 24
+		return false
+	case faultSSE <= bestB && faultSSE <= bestL && faultSSE > 4*float64(len(ev.sensors)):
+		// The other loggers moved too, but no physical change explains the
+		// picture: no finding; the zone's baselines take it in.
+		for _, s := range d.zones[zi].evidence {
+			o := &d.st.Sensors[s]
+			o.Up.Reset()
+			o.Down.Reset()
+			o.Base.Relearn = 24
+		}
 		return false
 	case faultSSE <= bestB && faultSSE <= bestL:
 		d.faultFinding(si, onset, now, fmt.Sprintf("residual moved %+.2f m since %s while the other loggers in zone %s stayed within their noise (%s) and the zone balance did not change",
@@ -403,7 +524,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	case bestB <= bestL:
 		l := bTop[0]
 		f := finding.Finding{Kind: finding.Blockage, Zone: zone, Onset: onset, Raised: now,
-			OpenFrac: round2(d.fitOpenFraction(l.idx, ev))}
+			OpenFrac: round2(l.size)}
 		for i, r := range bTop {
 			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(bScores[i])})
 		}
@@ -426,6 +547,42 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		d.accept(zi, ev, l.size, now, f)
 		return true
 	}
+}
+
+// changePoint returns the hour at which the series in r most likely
+// stepped, in the direction dir (±1): the τ in [lo, end] that maximises
+// S_τ²/n_τ with S_τ the sum of the values since τ (the likelihood-ratio
+// change point of a mean shift of unknown size in unit-variance noise;
+// Hinkley 1970, from memory).
+func changePoint(r *ring, lo time.Time, dir float64, fallback time.Time) time.Time {
+	best, at := 0.0, fallback
+	sum, n := 0.0, 0
+	for i := len(r.Vals) - 1; i >= 0; i-- {
+		t := r.End.Add(-time.Duration(len(r.Vals)-1-i) * time.Hour)
+		if t.Before(lo) {
+			break
+		}
+		if math.IsNaN(r.Vals[i]) {
+			continue
+		}
+		sum += r.Vals[i]
+		n++
+		if dir*sum > 0 && sum*sum/float64(n) > best {
+			best, at = sum*sum/float64(n), t
+		}
+	}
+	return at
+}
+
+// largestChange reports whether some logger of the evidence moved by more
+// than its own stated accuracy.
+func (d *Detector) largestChange(ev evidence) bool {
+	for k, si := range ev.sensors {
+		if math.Abs(ev.dr[k]) > d.sens[si].accuracy {
+			return true
+		}
+	}
+	return false
 }
 
 // refineOnset moves a zone change's onset to the hour that best fits a

@@ -108,17 +108,19 @@ func (d *Detector) rerank(w *watch) {
 	var ids []finding.Candidate
 	switch f.Kind {
 	case finding.Leak:
-		top, scores := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), d.cfg.Candidates)
+		short, _ := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), shortlist)
+		top, scores := rank(d.refineLeaks(ev, short, f.SizeLPS), d.cfg.Candidates)
 		for i, r := range top {
 			ids = append(ids, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
 		}
 	case finding.Blockage:
-		top, scores := rank(d.blockageFits(w.Zone, ev, sg), d.cfg.Candidates)
+		short, _ := rank(d.blockageFits(w.Zone, ev, sg), shortlist)
+		top, scores := rank(d.refineBlockages(ev, short), d.cfg.Candidates)
 		for i, r := range top {
 			ids = append(ids, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(scores[i])})
 		}
 		if len(top) > 0 {
-			f.OpenFrac = round2(d.fitOpenFraction(top[0].idx, ev))
+			f.OpenFrac = round2(top[0].size)
 		}
 	default:
 		return

@@ -96,7 +96,7 @@ func DemoSensors(net *network.Network) []telemetry.Sensor {
 			out = append(out, telemetry.Sensor{
 				ID: id, Quantity: telemetry.Flow, At: net.Links[k].ID, Topic: topic(z, id),
 				Unit: m3h.Symbol, Accuracy: sig2(flowAccuracyShare * m3h.FromCanonical(mean)),
-				Zone: z, Min: 0, Max: math.Ceil(4 * mean),
+				Zone: z, Min: -flowMargin(mean), Max: math.Ceil(4 * mean),
 			})
 		}
 		for i, n := range loggerSites(net, z, bounds[z]) {
@@ -131,7 +131,7 @@ func DemoSensors(net *network.Network) []telemetry.Sensor {
 		fid, pid := "F-pump-"+name, "P-pump-"+name
 		out = append(out,
 			telemetry.Sensor{ID: fid, Quantity: telemetry.Flow, At: l.ID, Topic: topic(zone, fid),
-				Unit: "L/s", Accuracy: sig2(flowAccuracyShare * mean), Zone: zone, Min: 0, Max: math.Ceil(4 * mean)},
+				Unit: "L/s", Accuracy: sig2(flowAccuracyShare * mean), Zone: zone, Min: -flowMargin(mean), Max: math.Ceil(4 * mean)},
 			telemetry.Sensor{ID: pid, Quantity: telemetry.Pressure, At: net.Nodes[l.To].ID, Topic: topic(zone, pid),
 				Unit: bar.Symbol, Accuracy: stationAccuracyBar, Zone: zone, Min: 0, Max: pressureMaxM},
 		)
@@ -141,6 +141,14 @@ func DemoSensors(net *network.Network) []telemetry.Sensor {
 
 // sig2 rounds a positive accuracy to two significant figures, at least
 // 0.001.
+// flowMargin is how far below zero a flow reading may fall and still be
+// plausible (L/s): a stopped pump's meter reads its noise around zero, so
+// a bound at 0 would reject half of its readings. Five times the meter's
+// accuracy, our choice.
+func flowMargin(mean float64) float64 {
+	return math.Ceil(5*flowAccuracyShare*mean*100) / 100
+}
+
 func sig2(v float64) float64 {
 	if v <= 0.001 {
 		return 0.001
