@@ -103,6 +103,10 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 		if countTrue(free) == 0 {
 			res.Status = NothingToFit
 			cur, theta = st0, theta0
+			if A != nil {
+				scale = m.noiseFactors(b, J, A, cur.r, free)
+				cov = m.covariance(b, J, A, free, scale)
+			}
 			break
 		}
 		cur, theta, A, g, err = m.levenberg(ctx, b, cur, theta, free, J, A, g, res, logf, noTrial, s.MaxIterations)
@@ -156,6 +160,9 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 		}
 	}
 	res.MisfitAfter = b.cost(cur.r) / float64(max(1, b.rows))
+	if cov == nil {
+		cov = mat.NewSymDense(max(1, np), nil)
+	}
 	res.Parameters = m.report(theta, free, A, cov)
 	res.Sensors = m.sensorFits(b, st0.r, cur.r, scale)
 
