@@ -38,8 +38,8 @@
 //     the head across it falls below its shutoff head. A network Speed of
 //     0 (the zero value) means nominal speed; Conditions.PumpSpeed 0 stops
 //     the pump (Closed).
-//   - Leaks: FAVAD (May 1994) q = C p^N for p > 0, smoothed below 0.01 m
-//     for N < 1 (see LeakFlow); the network's and the Conditions' leaks add.
+//   - Leaks: FAVAD (May 1994) q = C p^N for p > 0 and q = 0 for p ≤ 0
+//     (see LeakFlow); the network's and the Conditions' leaks add.
 //   - Valves: isolating (open or closed, minor loss when open), throttle
 //     (loss coefficient = setting), flow-control (Active holds the flow at
 //     the setting; Open when the head across it reverses),
@@ -61,6 +61,34 @@
 // the factorisation is retried once with 1e-8 added to the diagonal,
 // which alters the Newton step only, never the residuals that decide
 // convergence.
+//
+// # Pressures near and below zero
+//
+// Demands are taken as given (a demand-driven model): where the supply
+// cannot carry them, as behind a choked main, the solution shows the
+// negative pressures this implies rather than reducing the demands; read
+// them as "this demand cannot be served", not as a physical state.
+// A leak lets out nothing at p ≤ 0 (the orifice is not below a head of
+// water; the model lets nothing in either), and C p^N exactly above.
+//
+// For N < 1 the law's slope C N p^(N−1) grows without bound as p falls
+// to 0, and its tangent at p crosses zero at p(1 − 1/N) < 0: a Newton
+// step in the head overshoots into p < 0, where the leak is off, and the
+// next step returns to the pressure without the leak, a cycle that never
+// converges. Such leaks are therefore solved in flow form, as links from
+// their node to the open air: the outflow q is an unknown beside the
+// heads, with the law p = (q/C)^(1/N), convex in q, so that from above
+// its Newton steps do not overshoot the solution. Its slope dp/dq is
+// kept at least 1e-6 m per L/s (the links' low-flow resistance) as q
+// falls to 0; this alters the step, not the law that convergence is
+// tested on. A step that would make q negative leaves the leak dry
+// (q = 0); a dry leak restarts at C p^N once its node's pressure is
+// positive again, one step later, after the heads have settled without
+// it, so it approaches the solution from above. Leaks with N ≥ 1 (convex
+// in p, and N = 0, a constant outflow whenever p > 0) stay in head form.
+// The continuity residual that decides convergence counts every leak at
+// its law's outflow at the current head, and Solution.Leak is that
+// outflow.
 //
 // # Status logic
 //

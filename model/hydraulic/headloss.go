@@ -148,27 +148,27 @@ func MinorLoss(q, diameter, k float64) float64 {
 }
 
 // LeakFlow returns the FAVAD leak outflow q = c·p^n (L/s) of May (1994) at
-// pressure p (m), and dq/dp. It is zero for p ≤ 0. For n < 1 the law's
-// slope is infinite at p = 0, so below LeakSmoothPressure the outflow
-// follows the cubic c·p0^n·((3−n)x² + (n−2)x³), x = p/p0, which matches
-// the law's value and slope at p0 and starts flat at 0 (our choice).
+// pressure p (m), and dq/dp. It is zero, with a zero slope, for p ≤ 0: an
+// orifice below atmospheric pressure lets nothing out (and the model lets
+// nothing in). For 0 < n < 1 the slope n·q/p grows without bound as p
+// falls to 0; the Solver therefore does not linearise such leaks in the
+// pressure but solves them in flow form (see leakHead and the package
+// doc), where the law p = (q/c)^(1/n) is convex and has a finite slope.
 func LeakFlow(c, n, p float64) (q, dqdp float64) {
 	if c == 0 || p <= 0 {
 		return 0, 0
 	}
-	if n >= 1 || p >= LeakSmoothPressure {
-		q = c * math.Pow(p, n)
-		return q, n * q / p
-	}
-	p0 := LeakSmoothPressure
-	x := p / p0
-	q0 := c * math.Pow(p0, n)
-	a, b := 3-n, n-2
-	q = q0 * (a*x*x + b*x*x*x)
-	dqdp = q0 * (2*a*x + 3*b*x*x) / p0
-	return q, dqdp
+	q = c * math.Pow(p, n)
+	return q, n * q / p
 }
 
-// LeakSmoothPressure is the pressure (m) below which LeakFlow smooths the
-// FAVAD law for exponents below 1.
-const LeakSmoothPressure = 0.01
+// leakHead is the inverse of LeakFlow for q > 0: the pressure p (m) at
+// which a leak of coefficient c and exponent n lets out q (L/s), and
+// dp/dq. It returns 0, 0 for q ≤ 0.
+func leakHead(c, n, q float64) (p, dpdq float64) {
+	if q <= 0 {
+		return 0, 0
+	}
+	p = math.Pow(q/c, 1/n)
+	return p, p / (n * q)
+}

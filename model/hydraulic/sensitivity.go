@@ -63,9 +63,11 @@ func (s *Solver) Sensitivities(sol *Solution, obs []Observation) (*Sensitivity, 
 			return nil, fmt.Errorf("hydraulic: sensitivities: observation %d must set exactly one of Node and Link (the other −1)", i)
 		}
 	}
-	// Jacobian at the solution.
+	// Jacobian at the solution, every leak in head form: there the
+	// flow form's elimination gives the same derivative dq/dp.
+	s.leaks = s.leaks[:0]
 	s.coefficients(sol)
-	s.residuals(sol)
+	s.residuals(sol, true)
 	s.assemble(sol)
 	if err := s.factorize(); err != nil {
 		return nil, err

@@ -26,6 +26,7 @@ func sensNet(withPRV bool) *network.Network {
 		pipe("P7", "D", "F", 400, 100, 130)
 	n := b.net()
 	n.Nodes[5].LeakCoeff, n.Nodes[5].LeakExponent = 0.05, 1.1 // a background leak at E
+	n.Nodes[6].LeakCoeff, n.Nodes[6].LeakExponent = 0.3, 0.5  // an orifice leak at F (solved in flow form)
 	return n
 }
 

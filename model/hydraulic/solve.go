@@ -254,29 +254,69 @@ func (s *Solver) initialise(sol *Solution, warm *Solution) {
 			sol.Flow[k] = initialVelocity * m.area * 1000
 		}
 	}
+	s.initLeaks(sol)
 }
 
-// leakAt returns a node's total leak outflow and its derivative at head h.
-func (s *Solver) leakAt(i int, h float64, sol *Solution) (q, dq float64) {
+// initLeaks lists the leaks solved in flow form and starts each at its
+// law's outflow at the initial head (dry if the pressure is not
+// positive). From there Newton's method on the convex law p = (q/c)^(1/n)
+// approaches the solution from above instead of overshooting it.
+func (s *Solver) initLeaks(sol *Solution) {
+	s.leaks = s.leaks[:0]
+	for _, i := range s.node {
+		n := &s.net.Nodes[i]
+		p := sol.Head[i] - n.Elevation
+		for _, cn := range [2][2]float64{{n.LeakCoeff, n.LeakExponent}, {sol.leakC[i], sol.leakN[i]}} {
+			if !flowForm(cn[0], cn[1]) {
+				continue
+			}
+			q, _ := LeakFlow(cn[0], cn[1], p)
+			s.leaks = append(s.leaks, leakTerm{node: i, c: cn[0], n: cn[1], q: q, dry: q <= 0})
+		}
+	}
+}
+
+// leakAt returns a node's leak outflow by the law and its derivative at
+// head h: of all its leaks if all is set, otherwise only of those solved
+// in head form.
+func (s *Solver) leakAt(i int, h float64, sol *Solution, all bool) (q, dq float64) {
 	n := &s.net.Nodes[i]
 	p := h - n.Elevation
-	q1, d1 := LeakFlow(n.LeakCoeff, n.LeakExponent, p)
-	q2, d2 := LeakFlow(sol.leakC[i], sol.leakN[i], p)
-	return q1 + q2, d1 + d2
+	for _, cn := range [2][2]float64{{n.LeakCoeff, n.LeakExponent}, {sol.leakC[i], sol.leakN[i]}} {
+		if !all && flowForm(cn[0], cn[1]) {
+			continue
+		}
+		q1, d1 := LeakFlow(cn[0], cn[1], p)
+		q, dq = q+q1, dq+d1
+	}
+	return q, dq
 }
 
 // residuals fills s.F with the continuity residual of every node
 // (inflow − outflow − demand − leak; zero for fixed-head nodes) and
-// s.leakD with dleak/dH, and returns the largest |F| over junctions.
-func (s *Solver) residuals(sol *Solution) float64 {
+// s.leakD with dleak/dH of the leaks in head form, and returns the
+// largest continuity residual over junctions with every leak at its law's
+// outflow. In s.F the leaks of s.leaks count with their iterates (the
+// Newton step needs those), unless all is set: then every leak is in
+// head form at its law (at a solution, for sensitivities).
+func (s *Solver) residuals(sol *Solution, all bool) float64 {
 	for i := range s.F {
+		s.leakGap[i] = 0
 		if s.jx[i] < 0 {
 			s.F[i], s.leakD[i] = 0, 0
 			continue
 		}
-		q, dq := s.leakAt(i, sol.Head[i], sol)
+		q, dq := s.leakAt(i, sol.Head[i], sol, all)
 		s.F[i] = -sol.Demand[i] - q
 		s.leakD[i] = dq
+	}
+	if !all {
+		for t := range s.leaks {
+			lt := &s.leaks[t]
+			law, _ := LeakFlow(lt.c, lt.n, sol.Head[lt.node]-s.net.Nodes[lt.node].Elevation)
+			s.F[lt.node] -= lt.q
+			s.leakGap[lt.node] += lt.q - law
+		}
 	}
 	for k := range s.lm {
 		m := &s.lm[k]
@@ -291,7 +331,7 @@ func (s *Solver) residuals(sol *Solution) float64 {
 	worst := 0.0
 	for i, f := range s.F {
 		if s.jx[i] >= 0 {
-			worst = max(worst, math.Abs(f))
+			worst = max(worst, math.Abs(f+s.leakGap[i]))
 		}
 	}
 	return worst
@@ -326,6 +366,33 @@ func (s *Solver) coefficients(sol *Solution) {
 			s.s[k] = sc
 		}
 	}
+	s.leakCoefficients(sol)
+}
+
+// leakCoefficients sets p and y of every flow-form leak, as for a link
+// from its node to the open air (head = the node's elevation):
+// Δq = p·ΔH − y with p = 1/(dp/dq), y = (p_law(q) − p)/(dp/dq), and sums
+// them per node in s.leakP and s.leakY. As q falls to 0, dp/dq does too;
+// it is kept at least gMin (the links' low-flow resistance), which caps
+// the conductance at 1e6 L/s per m and alters the step, not the law that
+// decides convergence. A dry leak adds nothing.
+func (s *Solver) leakCoefficients(sol *Solution) {
+	for _, i := range s.node {
+		s.leakP[i], s.leakY[i] = 0, 0
+	}
+	for t := range s.leaks {
+		lt := &s.leaks[t]
+		if lt.dry {
+			lt.p, lt.y = 0, 0
+			continue
+		}
+		h, g := leakHead(lt.c, lt.n, lt.q)
+		g = max(g, gMin)
+		lt.p = 1 / g
+		lt.y = (h - (sol.Head[lt.node] - s.net.Nodes[lt.node].Elevation)) / g
+		s.leakP[lt.node] += lt.p
+		s.leakY[lt.node] += lt.y
+	}
 }
 
 // sign of link k at node n in the incidence matrix: +1 if k flows into n.
@@ -339,8 +406,8 @@ func (s *Solver) incidence(k, n int) float64 {
 // assemble builds the Schur complement matrix and right-hand side.
 func (s *Solver) assemble(sol *Solution) {
 	for j, n := range s.node {
-		s.diag[j] = s.leakD[n]
-		s.rhs[j] = s.F[n]
+		s.diag[j] = s.leakD[n] + s.leakP[n]
+		s.rhs[j] = s.F[n] + s.leakY[n]
 	}
 	for k := range s.lm {
 		m := &s.lm[k]
@@ -379,7 +446,7 @@ func (s *Solver) assemble(sol *Solution) {
 			continue
 		}
 		acK := s.incidence(k, c)
-		sum := s.F[c] - s.leakD[c]*delta
+		sum := s.F[c] - (s.leakD[c]+s.leakP[c])*delta + s.leakY[c]
 		for _, l := range s.incLink[s.incPtr[c]:s.incPtr[c+1]] {
 			if l == k {
 				continue
@@ -418,7 +485,7 @@ func (s *Solver) updateFlows(sol *Solution) float64 {
 			continue
 		}
 		// continuity at c, linearised: F + Σ A ΔQ − L' ΔH = 0
-		sum := s.F[c] - s.leakD[c]*s.dH[s.jx[c]]
+		sum := s.F[c] - (s.leakD[c]+s.leakP[c])*s.dH[s.jx[c]] + s.leakY[c]
 		for _, l := range s.incLink[s.incPtr[c]:s.incPtr[c+1]] {
 			if l != k {
 				sum += s.incidence(l, c) * s.dQ[l]
@@ -431,12 +498,44 @@ func (s *Solver) updateFlows(sol *Solution) float64 {
 		sol.Flow[k] += s.dQ[k]
 		worst = max(worst, math.Abs(s.dQ[k]))
 	}
+	return max(worst, s.updateLeaks(sol))
+}
+
+// updateLeaks applies the Newton step to the flow-form leaks (heads
+// already updated) and returns the largest outflow change. A step that
+// would make an outflow negative leaves the leak dry (zero outflow, the
+// law at p ≤ 0); a leak dry at the start of the step takes its law's
+// outflow again once its node's pressure is positive. A leak dried in
+// this step waits one step, so that the heads first settle without it:
+// restarted at the law's outflow at that pressure, it approaches the
+// solution from above, where Newton's method on its convex law does not
+// overshoot.
+func (s *Solver) updateLeaks(sol *Solution) float64 {
+	worst := 0.0
+	for t := range s.leaks {
+		lt := &s.leaks[t]
+		if lt.dry {
+			q, _ := LeakFlow(lt.c, lt.n, sol.Head[lt.node]-s.net.Nodes[lt.node].Elevation)
+			if q > 0 {
+				lt.q, lt.dry = q, false
+				worst = max(worst, q)
+			}
+			continue
+		}
+		dq := lt.p*s.dH[s.jx[lt.node]] - lt.y
+		if lt.q+dq <= 0 {
+			dq = -lt.q
+			lt.dry = true
+		}
+		lt.q += dq
+		worst = max(worst, math.Abs(dq))
+	}
 	return worst
 }
 
 func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 	opt := &s.opt
-	imb := s.residuals(sol)
+	imb := s.residuals(sol, false)
 	dqMax := math.Inf(1)
 	it := 0
 	converged := false
@@ -454,7 +553,7 @@ func (s *Solver) iterate(sol *Solution) (*Solution, error) {
 			}
 		}
 		dqMax = s.updateFlows(sol)
-		imb = s.residuals(sol)
+		imb = s.residuals(sol, false)
 		changed := false
 		// Statuses are examined once the flows settle, and every tenth
 		// iteration while they do not (a wrong status can keep them
@@ -558,7 +657,7 @@ func (s *Solver) finish(sol *Solution) {
 		switch {
 		case s.jx[i] >= 0:
 			sol.Pressure[i] = sol.Head[i] - n.Elevation
-			q, _ := s.leakAt(i, sol.Head[i], sol)
+			q, _ := s.leakAt(i, sol.Head[i], sol, true)
 			sol.Leak[i] = q
 		case n.Kind == network.Tank:
 			sol.Pressure[i] = sol.Head[i] - n.Elevation

@@ -79,7 +79,32 @@ type Solver struct {
 	queue                                     []int
 	seen                                      []bool
 	ctrl                                      []int // link -> controlled node for active pressure valves, else -1
+
+	// Leaks solved in flow form (exponent below 1): their outflow
+	// iterates, and per node the sums of their Newton coefficients and
+	// the gap between iterate and law (for the imbalance test).
+	leaks                 []leakTerm
+	leakP, leakY, leakGap []float64
 }
+
+// leakTerm is one FAVAD leak with exponent in (0, 1), solved in flow form:
+// its outflow q is an unknown of Newton's method beside the heads, with
+// the law p = (q/c)^(1/n), convex in q. A Newton step that would make q
+// negative leaves the leak dry (q = 0: the law's p ≤ 0 branch) until the
+// node's pressure is positive again.
+type leakTerm struct {
+	node int
+	c, n float64
+	q    float64 // outflow iterate, L/s
+	p, y float64 // Newton coefficients: Δq = p·ΔH − y
+	dry  bool
+}
+
+// flowForm reports whether a leak of coefficient c and exponent n is
+// solved in flow form. Exponents of 1 and above are convex in the
+// pressure and stay in head form; so does n = 0 (a constant outflow
+// whenever the pressure is positive), whose inverse does not exist.
+func flowForm(c, n float64) bool { return c > 0 && n > 0 && n < 1 }
 
 // NewSolver checks the network's links for the data the laws need,
 // numbers the junctions, fits the pump curves and analyses the matrix
@@ -171,6 +196,9 @@ func NewSolver(net *network.Network, opt Options) (*Solver, error) {
 	s.queue = make([]int, 0, nn)
 	s.seen = make([]bool, nn)
 	s.ctrl = make([]int, nl)
+	s.leakP = make([]float64, nn)
+	s.leakY = make([]float64, nn)
+	s.leakGap = make([]float64, nn)
 	return s, nil
 }
 
