@@ -25,6 +25,7 @@
 #   PLUMBLINE_TEST_INFLUX_DB     database name; the bucket is DB/autogen
 #   PLUMBLINE_MOSQUITTO_BIN      path of mosquitto, for tests that run their own
 #   PLUMBLINE_INFLUXD_BIN        path of influxd, for tests that run their own
+#   PLUMBLINE_CHROMIUM_BIN       path of chromium, for the operator page test (daemon/web)
 #
 # Overrides: PLUMBLINE_MOSQUITTO_BIN and PLUMBLINE_INFLUXD_BIN, when set to an
 # existing binary, are used instead of installing. TESTENV_KEEP=1 keeps the
@@ -65,6 +66,24 @@ if ! mosquitto_bin=$(find_mosquitto); then
   apt-get install -y -qq mosquitto >&2 || die "apt-get install mosquitto failed"
   mosquitto_bin=$(find_mosquitto) || die "mosquitto still not found after installing"
 fi
+
+# --- 1b. Chromium (the operator page's browser test, daemon/web) ----------
+find_chromium() {
+  if [ -n "${PLUMBLINE_CHROMIUM_BIN:-}" ] && [ -x "$PLUMBLINE_CHROMIUM_BIN" ]; then
+    echo "$PLUMBLINE_CHROMIUM_BIN"; return 0
+  fi
+  if [ -x /usr/bin/chromium ]; then echo /usr/bin/chromium; return 0; fi
+  return 1
+}
+if ! chromium_bin=$(find_chromium); then
+  [ "$(id -u)" -eq 0 ] || die "chromium is not installed and this is not root: run 'apt-get install -y chromium' as root"
+  say "installing chromium from Debian's packages"
+  export DEBIAN_FRONTEND=noninteractive
+  apt-get update -qq >&2 || die "apt-get update failed"
+  apt-get install -y -qq chromium >&2 || die "apt-get install chromium failed"
+  chromium_bin=$(find_chromium) || die "chromium still not found after installing"
+fi
+export PLUMBLINE_CHROMIUM_BIN="$chromium_bin"
 
 # --- 2. InfluxDB 1.8 OSS --------------------------------------------------
 influxd_bin=""
