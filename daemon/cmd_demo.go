@@ -30,7 +30,7 @@ import (
 // the injected events, published over MQTT at the chosen speed-up.
 const (
 	demoHistoryDays = 8
-	demoLiveDays    = 4
+	demoLiveDays    = 3
 )
 
 // runDemo implements `plumbline demo`: the demo town simulated and
@@ -79,7 +79,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	live := start.Add(demoHistoryDays * 24 * time.Hour)
 	end := live.Add(demoLiveDays * 24 * time.Hour)
 	for i := range events {
-		events[i].Start = live.Add(time.Duration(i*24+8) * time.Hour)
+		events[i].Start = live.Add(time.Duration(i*20+6) * time.Hour)
 	}
 
 	var steps atomic.Int64

@@ -351,9 +351,22 @@ func (d *Detector) blockageFits(zi int, ev evidence, sg *signatures) []ranked {
 // the baselines, so that later tests look for what is new.
 func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time, f finding.Finding) {
 	zs := &d.st.Zones[zi]
-	idx := d.raise(f)
-	if f.Kind == finding.Leak || f.Kind == finding.Blockage {
-		d.watch(idx, zi, ev, now)
+	if i, ok := d.sameEvent(f); ok {
+		// The change is the one an open finding already reports (a
+		// blockage's effect grows and shrinks with the day's flows): the
+		// finding is updated, not raised again.
+		old := &d.st.Findings[i]
+		old.Candidates, old.Evidence = f.Candidates, f.Evidence+" (update)"
+		if f.Kind == finding.Blockage {
+			old.OpenFrac = f.OpenFrac
+		}
+		d.updated = append(d.updated, *old)
+		leak = 0
+	} else {
+		idx := d.raise(f)
+		if f.Kind == finding.Leak || f.Kind == finding.Blockage {
+			d.watch(idx, zi, ev, now)
+		}
 	}
 	if leak != 0 {
 		zs.Base.Shift(leak)
@@ -572,6 +585,35 @@ func changePoint(r *ring, lo time.Time, dir float64, fallback time.Time) time.Ti
 		}
 	}
 	return at
+}
+
+// sameEvent finds an active blockage of the same zone whose best
+// candidates overlap f's: the same constriction seen again. Leaks are not
+// merged: a second leak in a zone adds to the first.
+func (d *Detector) sameEvent(f finding.Finding) (int, bool) {
+	if f.Kind != finding.Blockage {
+		return 0, false
+	}
+	top := func(cs []finding.Candidate) map[string]bool {
+		m := map[string]bool{}
+		for i := 0; i < len(cs) && i < 3; i++ {
+			m[cs[i].ID] = true
+		}
+		return m
+	}
+	mine := top(f.Candidates)
+	for i := len(d.st.Findings) - 1; i >= 0; i-- {
+		g := d.st.Findings[i]
+		if g.Kind != f.Kind || g.Zone != f.Zone || (i < len(d.st.Resolved) && d.st.Resolved[i]) {
+			continue
+		}
+		for id := range top(g.Candidates) {
+			if mine[id] {
+				return i, true
+			}
+		}
+	}
+	return 0, false
 }
 
 // largestChange reports whether some logger of the evidence moved by more
