@@ -84,8 +84,13 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	}
 	var A *mat.SymDense
 	var g []float64
+	var priorScreen *linkScreen // closed-valve screen at the recorded state
 	if np > 0 {
-		if err := m.jacobian(ctx, b, st0, J, nil, nil); err != nil {
+		if s.SuspectCandidates > 0 {
+			nl := len(p.Network.Links)
+			priorScreen = &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
+		}
+		if err := m.jacobian(ctx, b, st0, J, nil, priorScreen); err != nil {
 			return nil, err
 		}
 		A, g = normal(J, b.w, st0.r, np)
@@ -186,7 +191,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 
 	// Closed-valve and topology check.
 	if s.SuspectCandidates > 0 {
-		sus, err := m.suspects(ctx, b, cur, st0, free, scale)
+		sus, err := m.suspects(ctx, b, cur, priorScreen, free, scale)
 		if err != nil {
 			return nil, err
 		}

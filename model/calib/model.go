@@ -397,6 +397,9 @@ func roughnessElasticity(net *network.Network, l int, q float64) float64 {
 		}
 		return el * hf / (hf + hm)
 	}
+	if hm == 0 {
+		return -hwExp
+	}
 	hf := hydraulic.HazenWilliamsLoss(aq, lk.Length, d, lk.Roughness)
 	if hf+hm <= 0 {
 		return -hwExp

@@ -29,21 +29,35 @@ const (
 // log-resistance increase to the remaining residuals, then full solves
 // of the best candidates at rising resistance factors on a subset of the
 // snapshots. scale holds the sensors' noise factors.
-func (m *model) suspects(ctx context.Context, b *batch, cur, prior *state, free []bool, scale []float64) ([]Suspect, error) {
+func (m *model) suspects(ctx context.Context, b *batch, cur *state, priorScreen *linkScreen, free []bool, scale []float64) ([]Suspect, error) {
 	nl := len(m.net.Links)
-	J := mat.NewDense(max(1, b.rows), max(1, len(m.params)), nil)
 	type cand struct {
 		link  int
 		score float64
+	}
+	// The fitted state is screened on a spread subset of the snapshots.
+	scr, scrIdx := spread(b, 4*m.set.SuspectSnapshots)
+	scrB := newBatch(scr, m.sens)
+	scrWarm := &state{sols: make([]*hydraulic.Solution, len(scr))}
+	for k, j := range scrIdx {
+		scrWarm.sols[k] = cur.sols[j]
+	}
+	scrSt, err := m.evaluate(ctx, scrB, cur.theta, scrWarm, noTrial)
+	if err != nil {
+		return nil, err
+	}
+	fitScreen := &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
+	J := mat.NewDense(max(1, scrB.rows), max(1, len(m.params)), nil)
+	if err := m.jacobian(ctx, scrB, scrSt, J, scale, fitScreen); err != nil {
+		return nil, err
 	}
 	// Screen at the fitted state and at the recorded one: the fit may
 	// have bent roughness to mimic a shut valve, hiding part of its mark.
 	seen := map[int]bool{}
 	var cands []cand
-	for _, st := range []*state{cur, prior} {
-		screen := &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
-		if err := m.jacobian(ctx, b, st, J, scale, screen); err != nil {
-			return nil, err
+	for _, screen := range []*linkScreen{fitScreen, priorScreen} {
+		if screen == nil {
+			continue
 		}
 		var cs []cand
 		for l := range m.net.Links {
@@ -67,23 +81,7 @@ func (m *model) suspects(ctx context.Context, b *batch, cur, prior *state, free 
 	if len(cands) == 0 {
 		return nil, nil
 	}
-	// A subset of the fit snapshots spread over the demand levels.
-	idx := make([]int, len(b.snaps))
-	for i := range idx {
-		idx[i] = i
-	}
-	sort.SliceStable(idx, func(a, c int) bool { return b.snaps[idx[a]].level < b.snaps[idx[c]].level })
-	n := min(m.set.SuspectSnapshots, len(idx))
-	var sub []*snapData
-	var subIdx []int
-	for k := range n {
-		j := idx[int(math.Round(float64(k)*float64(len(idx)-1)/float64(max(1, n-1))))]
-		if n == 1 {
-			j = idx[len(idx)/2]
-		}
-		sub = append(sub, b.snaps[j])
-		subIdx = append(subIdx, j)
-	}
+	sub, subIdx := spread(b, m.set.SuspectSnapshots)
 	sb := newBatch(sub, m.sens)
 	warm := &state{sols: make([]*hydraulic.Solution, len(sub))}
 	for k, j := range subIdx {
@@ -194,6 +192,28 @@ func (m *model) suspects(ctx context.Context, b *batch, cur, prior *state, free 
 		return out[a].MisfitBefore-out[a].MisfitAfter > out[c].MisfitBefore-out[c].MisfitAfter
 	})
 	return out, nil
+}
+
+// spread returns up to n snapshots of b spread evenly over their demand
+// levels, with their indices in b.
+func spread(b *batch, n int) ([]*snapData, []int) {
+	idx := make([]int, len(b.snaps))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, c int) bool { return b.snaps[idx[a]].level < b.snaps[idx[c]].level })
+	n = min(n, len(idx))
+	var sub []*snapData
+	var subIdx []int
+	for k := range n {
+		j := idx[len(idx)/2]
+		if n > 1 {
+			j = idx[int(math.Round(float64(k)*float64(len(idx)-1)/float64(n-1)))]
+		}
+		sub = append(sub, b.snaps[j])
+		subIdx = append(subIdx, j)
+	}
+	return sub, subIdx
 }
 
 // suspect writes one suspect with its evidence.
