@@ -8,6 +8,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"plumbline/internal/spell"
 	"reflect"
 	"regexp"
 	"sort"
@@ -255,7 +256,7 @@ func (l *loader) yamlMessage(file, msg string, doc *yaml.Node, subject string) {
 		sec := sections[m[3]]
 		known := keysOf(sec.t)
 		hint := ""
-		if s := nearest(m[2], known); s != "" {
+		if s := spell.Nearest(m[2], known); s != "" {
 			hint = fmt.Sprintf(" (did you mean %s?)", s)
 		} else {
 			hint = fmt.Sprintf(" (known: %s)", strings.Join(known, ", "))
@@ -927,7 +928,7 @@ func (l *loader) checkKeys(file string, m *yaml.Node, known []string, subject, w
 			continue
 		}
 		hint := fmt.Sprintf(" (known: %s)", strings.Join(known, ", "))
-		if s := nearest(k.Value, known); s != "" {
+		if s := spell.Nearest(k.Value, known); s != "" {
 			hint = fmt.Sprintf(" (did you mean %s?)", s)
 		}
 		l.errf(file, k.Line, subject, k.Value, "unknown key in %s%s", what, hint)
@@ -1048,51 +1049,4 @@ func (l *loader) zones(c *Config, raw *rawConfig, doc *yaml.Node) {
 		}
 		c.Zones = append(c.Zones, z)
 	}
-}
-
-// nearest returns the word of words within a small edit distance of s
-// (one edit under 7 letters, two from 7), or "".
-func nearest(s string, words []string) string {
-	limit := 1
-	if len(s) >= 7 {
-		limit = 2
-	}
-	best, bestD := "", limit+1
-	for _, w := range words {
-		if d := editDistance(s, w); d < bestD && w != s {
-			best, bestD = w, d
-		}
-	}
-	if len(s) < 3 {
-		return ""
-	}
-	return best
-}
-
-func editDistance(a, b string) int {
-	if len(a) > 64 || len(b) > 64 {
-		return 99
-	}
-	// d[i][j] is the distance between a[:i] and b[:j].
-	d := make([][]int, len(a)+1)
-	for i := range d {
-		d[i] = make([]int, len(b)+1)
-		d[i][0] = i
-	}
-	for j := range d[0] {
-		d[0][j] = j
-	}
-	for i := 1; i <= len(a); i++ {
-		for j := 1; j <= len(b); j++ {
-			c := 1
-			if a[i-1] == b[j-1] {
-				c = 0
-			}
-			d[i][j] = min(d[i-1][j-1]+c, d[i-1][j]+1, d[i][j-1]+1)
-			if i > 1 && j > 1 && a[i-1] == b[j-2] && a[i-2] == b[j-1] {
-				d[i][j] = min(d[i][j], d[i-2][j-2]+1) // transposition
-			}
-		}
-	}
-	return d[len(a)][len(b)]
 }

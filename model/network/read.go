@@ -8,6 +8,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"plumbline/internal/spell"
 	"sort"
 	"strconv"
 	"strings"
@@ -485,7 +486,7 @@ func (p *parser) settings(n *Network, raw json.RawMessage, line int) {
 			}
 		default:
 			msg := "unknown setting (want headloss, viscosity_m2s, patterns or pattern_step)"
-			if s := nearest(key, settingKeys); s != "" {
+			if s := spell.Nearest(key, settingKeys); s != "" {
 				msg = fmt.Sprintf("unknown setting, ignored (did you mean %s?)", s)
 			}
 			p.fileWarning(line, prop, "%s", msg)
@@ -669,7 +670,7 @@ func (fc *featureCtx) boolean(key string) (bool, bool) {
 // misspelt property when there is one.
 func (fc *featureCtx) missing(key string) {
 	for k := range fc.props {
-		if !fc.known(k) && nearest(k, []string{key}) != "" {
+		if !fc.known(k) && spell.Nearest(k, []string{key}) != "" {
 			fc.problem(Error, key, "required for a %s, missing (found %q: misspelt?)", fc.kind, k)
 			return
 		}
@@ -725,7 +726,7 @@ func (fc *featureCtx) extra() map[string]json.RawMessage {
 			out = map[string]json.RawMessage{}
 		}
 		out[k] = compact(fc.props[k])
-		if s := nearest(k, fc.kindProps()); s != "" {
+		if s := spell.Nearest(k, fc.kindProps()); s != "" {
 			fc.problem(Warning, k, "unknown property, kept as is (did you mean %s?)", s)
 		} else if otherKind(k) {
 			fc.problem(Warning, k, "not a property of a %s, kept as is but not used", fc.kind)
@@ -943,57 +944,4 @@ func (fc *featureCtx) curve() [][2]float64 {
 		out = append(out, [2]float64{pt[0], pt[1]})
 	}
 	return out
-}
-
-// nearest returns the word of words within a small edit distance of s
-// (a likely misspelling: one edit for words under 7 letters, two for
-// longer ones), or "".
-func nearest(s string, words []string) string {
-	limit := 1 // short words: one slip only ("note" is not "zone")
-	if len(s) >= 7 {
-		limit = 2
-	}
-	best, bestD := "", limit+1
-	for _, w := range words {
-		if w == s {
-			continue
-		}
-		if d := editDistance(s, w); d < bestD {
-			best, bestD = w, d
-		}
-	}
-	if bestD > limit || len(s) < 3 {
-		return ""
-	}
-	return best
-}
-
-// editDistance is the optimal-string-alignment distance between a and b:
-// insertions, deletions, substitutions and swaps of neighbours.
-func editDistance(a, b string) int {
-	if len(a) > 64 || len(b) > 64 {
-		return 99
-	}
-	// d[i][j] is the distance between a[:i] and b[:j].
-	d := make([][]int, len(a)+1)
-	for i := range d {
-		d[i] = make([]int, len(b)+1)
-		d[i][0] = i
-	}
-	for j := range d[0] {
-		d[0][j] = j
-	}
-	for i := 1; i <= len(a); i++ {
-		for j := 1; j <= len(b); j++ {
-			c := 1
-			if a[i-1] == b[j-1] {
-				c = 0
-			}
-			d[i][j] = min(d[i-1][j-1]+c, d[i-1][j]+1, d[i][j-1]+1)
-			if i > 1 && j > 1 && a[i-1] == b[j-2] && a[i-2] == b[j-1] {
-				d[i][j] = min(d[i][j], d[i-2][j-2]+1) // transposition
-			}
-		}
-	}
-	return d[len(a)][len(b)]
 }
