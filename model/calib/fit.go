@@ -72,9 +72,30 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 		ev.Msg(msg)
 	}
 
-	st0, err := m.evaluate(ctx, b, theta0, nil, noTrial)
+	st0, err := m.evaluateAll(ctx, b, theta0, nil, noTrial)
 	if err != nil {
 		return nil, fmt.Errorf("calibration: recorded network: %w", err)
+	}
+	// Snapshots the recorded network cannot solve are left out.
+	var kept []*snapData
+	for i, e := range st0.fails {
+		if e != nil {
+			warn(fmt.Sprintf("%v: left out", e))
+		} else {
+			kept = append(kept, fit[i])
+		}
+	}
+	if len(kept) < len(fit) {
+		if len(kept) == 0 {
+			return nil, fmt.Errorf("calibration: the recorded network solves none of the %d snapshots: %w", len(fit), errors.Join(st0.fails...))
+		}
+		fit = kept
+		res.FitSnapshots = len(fit)
+		b = newBatch(fit, m.sens)
+		res.Rows = b.rows
+		if st0, err = m.evaluate(ctx, b, theta0, nil, noTrial); err != nil {
+			return nil, fmt.Errorf("calibration: recorded network: %w", err)
+		}
 	}
 	res.Evaluations++
 	J := mat.NewDense(max(1, b.rows), max(1, np), nil)
@@ -175,9 +196,24 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	res.Validation.Days = heldDays
 	if len(held) > 0 {
 		hb := newBatch(held, m.sens)
-		before, err := m.evaluate(ctx, hb, theta0, nil, noTrial)
+		before, err := m.evaluateAll(ctx, hb, theta0, nil, noTrial)
 		if err != nil {
 			return nil, fmt.Errorf("calibration: validation, recorded network: %w", err)
+		}
+		var kept []*snapData
+		for i, e := range before.fails {
+			if e != nil {
+				warn(fmt.Sprintf("validation: %v: left out", e))
+			} else {
+				kept = append(kept, held[i])
+			}
+		}
+		if len(kept) < len(held) {
+			held = kept
+			hb = newBatch(held, m.sens)
+			if before, err = m.evaluate(ctx, hb, theta0, nil, noTrial); err != nil {
+				return nil, fmt.Errorf("calibration: validation, recorded network: %w", err)
+			}
 		}
 		after, err := m.evaluate(ctx, hb, theta, before, noTrial)
 		if err != nil {

@@ -95,6 +95,7 @@ type state struct {
 	nets    []*network.Network
 	solvers []*hydraulic.Solver
 	sols    []*hydraulic.Solution
+	fails   []error   // per snapshot: the solve's error, nil when solved
 	r       []float64 // per row: measured − modelled
 }
 
@@ -130,12 +131,28 @@ func knot(theta []float64, idx int) float64 {
 // residuals. Workers goroutines each own a solver and a network copy;
 // all have returned when evaluate does.
 func (m *model) evaluate(ctx context.Context, b *batch, theta []float64, warm *state, tr trial) (*state, error) {
+	st, err := m.evaluateAll(ctx, b, theta, warm, tr)
+	if err != nil {
+		return nil, err
+	}
+	for _, e := range st.fails {
+		if e != nil {
+			return nil, e
+		}
+	}
+	return st, nil
+}
+
+// evaluateAll is evaluate that goes on past snapshots that fail to
+// solve, recording their errors in the state's fails.
+func (m *model) evaluateAll(ctx context.Context, b *batch, theta []float64, warm *state, tr trial) (*state, error) {
 	W := max(1, min(m.set.Workers, len(b.snaps)))
 	st := &state{
 		theta:   append([]float64(nil), theta...),
 		nets:    make([]*network.Network, W),
 		solvers: make([]*hydraulic.Solver, W),
 		sols:    make([]*hydraulic.Solution, len(b.snaps)),
+		fails:   make([]error, len(b.snaps)),
 		r:       make([]float64, b.rows),
 	}
 	errs := make([]error, W)
@@ -210,7 +227,8 @@ func (m *model) evalWorker(ctx context.Context, b *batch, st *state, warm *state
 		}
 		sol, err := solver.Solve(c, prev)
 		if err != nil {
-			return fmt.Errorf("calibration: snapshot %s: %w", s.t.Format(time.RFC3339), err)
+			st.fails[i] = fmt.Errorf("calibration: snapshot %s: %w", s.t.Format(time.RFC3339), err)
+			continue
 		}
 		st.sols[i] = sol
 		for k, si := range s.obs {
