@@ -172,6 +172,18 @@ func TestOperatorPage(t *testing.T) {
 	if strings.Join(ranked, " ") != strings.Join(want, " ") {
 		t.Errorf("leak candidates on the map: got %v, want %v", ranked, want)
 	}
+	// The blockage candidates are traced along their links, best first.
+	traced, err := chromedp.Run(ctx, chromedp.Evaluate[[]string](`[...document.querySelectorAll('#map g.cand.blockage')].filter(g=>g.querySelector('polyline.trace')).sort((a,b)=>a.dataset.rank-b.dataset.rank).map(g=>g.dataset.rank+":"+g.dataset.id)`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	want = want[:0]
+	for i, id := range d.blocked {
+		want = append(want, fmt.Sprintf("%d:%s", i+1, id))
+	}
+	if strings.Join(traced, " ") != strings.Join(want, " ") {
+		t.Errorf("blockage candidates on the map: got %v, want %v", traced, want)
+	}
 	// One sensor marker per positioned sensor, coloured by quality.
 	sensors, err := chromedp.Run(ctx, chromedp.Evaluate[map[string]string](`Object.fromEntries([...document.querySelectorAll('#map g.sensors [data-id]')].map(e=>[e.dataset.id, e.dataset.quality]))`))
 	if err != nil {
@@ -197,10 +209,15 @@ func TestOperatorPage(t *testing.T) {
 	// Acknowledge the alert: first with a wrong token (refused, asked
 	// again), then with the right one.
 	alerts, _ := d.manager.Alerts(false)
-	if len(alerts) != 1 {
-		t.Fatalf("alerts: %d, want 1", len(alerts))
+	id := ""
+	for _, a := range alerts {
+		if a.Kind == "leak" {
+			id = a.ID
+		}
 	}
-	id := alerts[0].ID
+	if len(alerts) != 2 || id == "" {
+		t.Fatalf("alerts: %+v, want 2 with a leak", alerts)
+	}
 	row := fmt.Sprintf(`#alerts .alert[data-id="%s"]`, id)
 	if err := chromedp.Do(ctx,
 		chromedp.Click(chromedp.CSS(row+` button[data-action="ack"]`)),
@@ -216,8 +233,8 @@ func TestOperatorPage(t *testing.T) {
 	if err != nil {
 		t.Fatalf("wrong token: no refusal shown: %v", err)
 	}
-	if st, _ := d.manager.Alerts(false); st[0].State != "unacknowledged" {
-		t.Errorf("after the wrong token: state %s, want unacknowledged", st[0].State)
+	if st, _, _ := d.manager.Get(id); st.State != "unacknowledged" {
+		t.Errorf("after the wrong token: state %s, want unacknowledged", st.State)
 	}
 	t.Logf("wrong token: %s", msg)
 	if v, _ := chromedp.Run(ctx, chromedp.Value(chromedp.CSS(`#act-token`))); v != "" {
@@ -240,6 +257,32 @@ func TestOperatorPage(t *testing.T) {
 	}
 	if len(audit) == 0 || audit[len(audit)-1].Actor != "Mara Quill" {
 		t.Errorf("audit: %+v, want the last record by Mara Quill", audit)
+	}
+	// Shelve the blockage alert: the name and the token are remembered
+	// for the session, so only the duration and the reason are given.
+	var other string
+	for _, a := range alerts {
+		if a.ID != id {
+			other = a.ID
+		}
+	}
+	orow := fmt.Sprintf(`#alerts .alert[data-id="%s"]`, other)
+	if err := chromedp.Do(ctx,
+		chromedp.Click(chromedp.CSS(orow+` button[data-action="shelve"]`)),
+		chromedp.WaitVisible(chromedp.CSS(`#act-duration`)),
+		chromedp.SetValue(chromedp.CSS(`#act-duration`), "1h"),
+		chromedp.SendKeys(chromedp.CSS(`#act-text`), "contractor on site"),
+		chromedp.Click(chromedp.CSS(`#act-submit`)),
+		chromedp.WaitVisible(chromedp.CSS(orow+`[data-state="shelved"]`)),
+	); err != nil {
+		t.Fatalf("shelve: %v", err)
+	}
+	sh, _, err := d.manager.Get(other)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if wantUntil := d.view.Step.Add(time.Minute + time.Hour); sh.State != "shelved" || sh.ShelvedBy != "Mara Quill" || sh.ShelveReason != "contractor on site" || !sh.ShelvedUntil.Equal(wantUntil) {
+		t.Errorf("shelved alert: state %s by %q reason %q until %v, want shelved by Mara Quill until %v", sh.State, sh.ShelvedBy, sh.ShelveReason, sh.ShelvedUntil, wantUntil)
 	}
 	// The token stays in the tab's sessionStorage only, never in the page.
 	kept, err := chromedp.Run(ctx, chromedp.Evaluate[[]bool](fmt.Sprintf(`[sessionStorage.getItem("plumbline.token") === %q, document.documentElement.outerHTML.includes(%q)]`, token, token)))

@@ -30,6 +30,7 @@ type demo struct {
 	view     View
 	leak     string   // the leak junction (rank 1 candidate)
 	cands    []string // candidate junction ids, best first
+	blocked  []string // blockage candidate link ids, best first
 	manager  *alerts.Manager
 	leakZone string
 }
@@ -192,8 +193,47 @@ func loadDemo(t testing.TB) *demo {
 	}
 	f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: step.Add(-2 * time.Hour), Raised: step, SizeLPS: imb, Candidates: cands,
 		Evidence: fmt.Sprintf("zone inflow %+.2f L/s over the model; pressure residuals fit %s", imb, ids[0])}
-	return &demo{cfg: cfg, leak: ids[0], cands: ids, leakZone: zone, view: View{
-		Updated: step.Add(20 * time.Second), Step: step, Zones: zv, Sensors: sensors, Findings: []finding.Finding{f},
+	// A blockage in the first zone: the pipe whose midpoint is nearest the
+	// zone's mean position, then the two pipes nearest to it.
+	bz := zones[0]
+	var bx, by float64
+	var bn int
+	for i := range net.Nodes {
+		if nd := &net.Nodes[i]; nd.Zone == bz && nd.HasCoord {
+			bx, by, bn = bx+nd.Coord.Lon, by+nd.Coord.Lat, bn+1
+		}
+	}
+	bcentre := network.Point{Lon: bx / float64(bn), Lat: by / float64(bn)}
+	mid := func(k int) network.Point {
+		l := &net.Links[k]
+		a, b := net.Nodes[l.From].Coord, net.Nodes[l.To].Coord
+		return network.Point{Lon: (a.Lon + b.Lon) / 2, Lat: (a.Lat + b.Lat) / 2}
+	}
+	var pipes []int
+	for k := range net.Links {
+		l := &net.Links[k]
+		if l.Kind == network.Pipe && net.Nodes[l.From].Zone == bz && net.Nodes[l.To].Zone == bz {
+			pipes = append(pipes, k)
+		}
+	}
+	sort.Slice(pipes, func(a, b int) bool {
+		return network.GreatCircle(mid(pipes[a]), bcentre) < network.GreatCircle(mid(pipes[b]), bcentre)
+	})
+	first := pipes[0]
+	rest := append([]int(nil), pipes[1:]...)
+	sort.Slice(rest, func(a, b int) bool {
+		return network.GreatCircle(mid(rest[a]), mid(first)) < network.GreatCircle(mid(rest[b]), mid(first))
+	})
+	var bcands []finding.Candidate
+	var blinks []string
+	for r, k := range []int{first, rest[0], rest[1]} {
+		bcands = append(bcands, finding.Candidate{ID: net.Links[k].ID, Score: 0.8 - 0.2*float64(r)})
+		blinks = append(blinks, net.Links[k].ID)
+	}
+	bf := finding.Finding{Kind: finding.Blockage, Zone: bz, Onset: step.Add(-6 * time.Hour), Raised: step.Add(-time.Hour), OpenFrac: 0.3,
+		Candidates: bcands, Evidence: "head loss across " + blinks[0] + " above the model at every demand level"}
+	return &demo{cfg: cfg, leak: ids[0], cands: ids, blocked: blinks, leakZone: zone, view: View{
+		Updated: step.Add(20 * time.Second), Step: step, Zones: zv, Sensors: sensors, Findings: []finding.Finding{f, bf},
 	}}
 }
 

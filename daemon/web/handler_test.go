@@ -150,12 +150,12 @@ func TestViewJSON(t *testing.T) {
 	findings := v["findings"].([]any)
 	f0 := findings[0].(map[string]any)
 	c0 := f0["candidates"].([]any)[0].(map[string]any)
-	if len(findings) != 1 || f0["kind"] != "leak" || c0["id"] != d.leak {
-		t.Errorf("findings: got %v, want one leak with best candidate %s", findings, d.leak)
+	if len(findings) != 2 || f0["kind"] != "leak" || c0["id"] != d.leak || findings[1].(map[string]any)["kind"] != "blockage" {
+		t.Errorf("findings: got %v, want a leak with best candidate %s and a blockage", findings, d.leak)
 	}
 	al := v["alerts"].([]any)
-	if len(al) != 1 || al[0].(map[string]any)["state"] != "unacknowledged" {
-		t.Errorf("alerts: got %v, want one unacknowledged", al)
+	if len(al) != 2 || al[0].(map[string]any)["state"] != "unacknowledged" || al[1].(map[string]any)["state"] != "unacknowledged" {
+		t.Errorf("alerts: got %v, want two unacknowledged", al)
 	}
 
 	// The parts, each a list equal to the view's.
@@ -265,10 +265,11 @@ func TestMetrics(t *testing.T) {
 			t.Errorf("/metrics: no %s", name)
 		}
 	}
-	// Computed from the view: one leak finding, one unacknowledged alert;
+	// Computed from the view: one leak and one blockage finding, two
+	// unacknowledged alerts;
 	// the request counter saw the view and the unmatched path.
-	for _, line := range []string{`plumbline_findings_total{kind="leak"} 1`, `plumbline_findings_total{kind="blockage"} 0`,
-		`plumbline_alerts{state="unacknowledged"} 1`, `plumbline_alerts{state="acknowledged"} 0`,
+	for _, line := range []string{`plumbline_findings_total{kind="leak"} 1`, `plumbline_findings_total{kind="blockage"} 1`,
+		`plumbline_findings_total{kind="sensor-fault"} 0`, `plumbline_alerts{state="unacknowledged"} 2`, `plumbline_alerts{state="acknowledged"} 0`,
 		`plumbline_http_requests_total{route="GET /api/view",code="200"} 1`, `plumbline_http_requests_total{route="unmatched",code="404"} 1`} {
 		if !strings.Contains(text, "\n"+line+"\n") {
 			t.Errorf("/metrics: no line %q in\n%s", line, text)
@@ -404,8 +405,8 @@ func TestAlertsDelegated(t *testing.T) {
 	}
 	code, v := do("GET", "/api/alerts/", "tok-web", "")
 	list, _ := v["alerts"].([]any)
-	if code != 200 || len(list) != 1 {
-		t.Fatalf("GET /api/alerts/: got %d %v, want 200 and one alert", code, v)
+	if code != 200 || len(list) != 2 {
+		t.Fatalf("GET /api/alerts/: got %d %v, want 200 and two alerts", code, v)
 	}
 	id := list[0].(map[string]any)["id"].(string)
 	if code, _ := do("POST", "/api/alerts/"+id+"/ack", "wrong", `{"by":"ana"}`); code != 401 {
@@ -421,10 +422,19 @@ func TestAlertsDelegated(t *testing.T) {
 		Alerts []alerts.Alert `json:"alerts"`
 	}
 	decode(t, "/api/view", body, &view)
-	if len(view.Alerts) != 1 || view.Alerts[0].State != alerts.Acknowledged || view.Alerts[0].AckedBy != "ana" {
-		t.Errorf("view after ack: got %+v, want acknowledged by ana", view.Alerts)
+	states := map[string]alerts.State{}
+	for _, a := range view.Alerts {
+		states[a.ID] = a.State
+		if a.ID == id && a.AckedBy != "ana" {
+			t.Errorf("view after ack: %s acked by %q, want ana", id, a.AckedBy)
+		}
 	}
-	_ = d
+	if len(view.Alerts) != 2 || states[id] != alerts.Acknowledged {
+		t.Errorf("view after ack: got %v, want %s acknowledged among 2", states, id)
+	}
+	if n := len(d.view.Findings); n != 2 {
+		t.Errorf("demo findings: %d, want 2", n)
+	}
 }
 
 func TestHasFamily(t *testing.T) {

@@ -202,7 +202,10 @@
           }
         }
         if (!pos) continue;
-        const bx = pos[0] + 11, by = pos[1] - 11;
+        // Badges sit round the mark, a different side per rank, so the
+        // ranks of close candidates stay legible.
+        const ang = [-45, -135, 45, 135, -90][i % 5] * Math.PI / 180;
+        const bx = pos[0] + 15 * Math.cos(ang), by = pos[1] + 15 * Math.sin(ang);
         sv("circle", { class: "badge", cx: bx, cy: by, r: 8 }, g);
         sv("text", { x: bx, y: by }, g).textContent = String(rank);
         title(g, fd.kind + " candidate " + rank + ": " + c.id + " (score " + fmt(c.score, 2) + ") · zone " + fd.zone);
