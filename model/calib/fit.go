@@ -7,7 +7,6 @@ import (
 	"iter"
 	"math"
 	"sort"
-	"strings"
 	"time"
 
 	"gonum.org/v1/gonum/mat"
@@ -959,6 +958,3 @@ func patternAt(net *network.Network, name string, t time.Time, loc *time.Locatio
 }
 
 func round6(v float64) float64 { return math.Round(v*1e6) / 1e6 }
-
-// describe joins names for messages.
-func describe(names []string) string { return strings.Join(names, ", ") }

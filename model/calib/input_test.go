@@ -131,3 +131,45 @@ func TestReportRoundTrip(t *testing.T) {
 		}
 	}
 }
+
+// TestFitSeqThins checks that FitSeq keeps one snapshot per hour of a
+// stream of half-hourly snapshots, and fits the same as Fit on the
+// hourly ones.
+func TestFitSeqThins(t *testing.T) {
+	net := demoTown(t)
+	sensors := netgen.DemoSensors(net)
+	hourly := simulate(t, net, sensors, monday, 2, 8, nil)
+	var stream []telemetry.Snapshot
+	for _, s := range hourly {
+		half := s
+		half.Step = s.Step.Add(30 * time.Minute)
+		stream = append(stream, s, half)
+	}
+	seq := func(yield func(telemetry.Snapshot, error) bool) {
+		for _, s := range stream {
+			if !yield(s, nil) {
+				return
+			}
+		}
+	}
+	set := Settings{SuspectCandidates: -1, MaxIterations: 2}
+	a, err := FitSeq(context.Background(), net, sensors, nil, seq, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := Fit(context.Background(), Problem{Network: net, Sensors: sensors, Snapshots: hourly}, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.FitSnapshots != b.FitSnapshots || a.Rows != b.Rows || a.MisfitAfter != b.MisfitAfter {
+		t.Errorf("FitSeq: %d snapshots, %d rows, misfit %.6g; Fit on hourly: %d, %d, %.6g",
+			a.FitSnapshots, a.Rows, a.MisfitAfter, b.FitSnapshots, b.Rows, b.MisfitAfter)
+	}
+	if got, want := len(Thin(stream, time.Hour)), len(hourly); got != want {
+		t.Errorf("Thin kept %d snapshots, want %d", got, want)
+	}
+	failing := func(yield func(telemetry.Snapshot, error) bool) { yield(telemetry.Snapshot{}, errors.New("store down")) }
+	if _, err := FitSeq(context.Background(), net, sensors, nil, failing, set); err == nil || !strings.Contains(err.Error(), "store down") {
+		t.Errorf("failing stream: error %v, want one naming the stream's error", err)
+	}
+}
