@@ -55,6 +55,7 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	out := fs.String("findings", "findings.json", "findings file (JSON)")
 	asJSON := fs.Bool("json", false, "print the result as JSON")
 	quiet := fs.Bool("quiet", false, "no progress line on stderr")
+	reportOut := fs.String("report", "", "also write the retrospective report (HTML, with .json and .csv beside it)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -66,9 +67,18 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	if *quiet {
 		progress = nil
 	}
-	res, err := replay(ctx, o, progress, nil)
+	rb, onStep, err := reportHook(o, *reportOut)
 	if err != nil {
 		return err
+	}
+	res, err := replay(ctx, o, progress, onStep)
+	if err != nil {
+		return err
+	}
+	if rb != nil {
+		if _, _, err := writeReport(rb, res, *reportOut); err != nil {
+			return err
+		}
 	}
 	if err := writeFindings(*out, res.Findings); err != nil {
 		return err
