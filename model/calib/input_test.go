@@ -168,7 +168,9 @@ func TestFitSeqThins(t *testing.T) {
 	if got, want := len(Thin(stream, time.Hour)), len(hourly); got != want {
 		t.Errorf("Thin kept %d snapshots, want %d", got, want)
 	}
-	failing := func(yield func(telemetry.Snapshot, error) bool) { yield(telemetry.Snapshot{}, errors.New("store down")) }
+	failing := func(yield func(telemetry.Snapshot, error) bool) {
+		yield(telemetry.Snapshot{}, errors.New("store down"))
+	}
 	if _, err := FitSeq(context.Background(), net, sensors, nil, failing, set); err == nil || !strings.Contains(err.Error(), "store down") {
 		t.Errorf("failing stream: error %v, want one naming the stream's error", err)
 	}
