@@ -2,6 +2,8 @@ package main
 
 import (
 	"context"
+	"crypto/rand"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
@@ -102,6 +104,9 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	fmt.Fprintf(stdout, "  operator page: http://%s/\n", svc.Addr())
 	fmt.Fprintf(stdout, "  MQTT broker:   %s (embedded)\n", svc.MQTTURL())
 	fmt.Fprintf(stdout, "  data:          %s\n", dir)
+	if tok, err := os.ReadFile(filepath.Join(dir, "api.token")); err == nil {
+		fmt.Fprintf(stdout, "  operator token (for Acknowledge and Shelve on the page): %s", tok)
+	}
 	fmt.Fprintf(stdout, "  %d days of history go straight into the store; then %d days are published live, a day every %.0f s\n\n",
 		demoHistoryDays, demoLiveDays, 86400 / *speedup)
 
@@ -221,6 +226,15 @@ func demoConfig(dir string) (*config.Config, *network.Network, error) {
 		return nil, nil, err
 	}
 	yml := demoConfigYAML(net, ".")
+	// The operator page's Acknowledge and Shelve buttons ask for this token.
+	tok := make([]byte, 12)
+	if _, err := rand.Read(tok); err != nil {
+		return nil, nil, err
+	}
+	if err := os.WriteFile(filepath.Join(dir, "api.token"), []byte(hex.EncodeToString(tok)+"\n"), 0o600); err != nil {
+		return nil, nil, err
+	}
+	yml += "alerts:\n  clear_after: 2h\n  api_token_file: api.token\n"
 	path := filepath.Join(dir, "demo-town.yaml")
 	if err := os.WriteFile(path, []byte(yml), 0o644); err != nil {
 		return nil, nil, err

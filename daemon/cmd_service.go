@@ -9,6 +9,7 @@ import (
 
 	"plumbline/daemon/config"
 	"plumbline/daemon/service"
+	"plumbline/daemon/web"
 )
 
 // runService implements `plumbline run`: the long-running service.
@@ -51,5 +52,8 @@ func runService(ctx context.Context, args []string, stdout, stderr io.Writer) er
 	return nil
 }
 
-// webHandler is the HTTP surface of the service.
-func webHandler(s *service.Service) http.Handler { return s.MinimalHandler() }
+// webHandler is the HTTP surface of the service: health, readiness,
+// metrics, the JSON API, the alert actions and the operator page.
+func webHandler(s *service.Service) http.Handler {
+	return web.NewHandler(s.Config().Network, s.WebProvider(), s.AlertsAPI(), s.Logger())
+}

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"plumbline/alerts"
+	"plumbline/daemon/web"
 )
 
 // metrics are the service's own counters; the components add theirs.
@@ -49,7 +50,7 @@ func (s *Service) WriteMetrics(w io.Writer) error {
 	s.mu.Lock()
 	stepSec := s.stepTime.Seconds()
 	s.mu.Unlock()
-	p("# HELP plumbline_step_seconds Time the last model step took after its solves.\n# TYPE plumbline_step_seconds gauge\nplumbline_step_seconds %g\n", stepSec)
+	p("# HELP plumbline_step_seconds Wall time of the last model step (both solves, tests, hypotheses).\n# TYPE plumbline_step_seconds gauge\nplumbline_step_seconds %g\n", stepSec)
 	p("# HELP plumbline_steps_total Model steps processed.\n# TYPE plumbline_steps_total counter\nplumbline_steps_total %d\n", s.metrics.steps.Load())
 	p("# HELP plumbline_solver_iterations_total Newton iterations of every solve.\n# TYPE plumbline_solver_iterations_total counter\nplumbline_solver_iterations_total %d\n", s.metrics.iterations.Load())
 	p("# HELP plumbline_findings_total Findings raised, by kind.\n# TYPE plumbline_findings_total counter\n")
@@ -123,3 +124,12 @@ func (s *Service) MinimalHandler() http.Handler {
 	}
 	return mux
 }
+
+// WebProvider adapts the service to daemon/web's Provider.
+func (s *Service) WebProvider() web.Provider { return webProvider{s} }
+
+type webProvider struct{ s *Service }
+
+func (p webProvider) View() web.View                 { return p.s.View() }
+func (p webProvider) Ready() (bool, []string)        { return p.s.ReadyState() }
+func (p webProvider) WriteMetrics(w io.Writer) error { return p.s.WriteMetrics(w) }

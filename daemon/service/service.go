@@ -98,7 +98,7 @@ type Service struct {
 	mu       sync.Mutex // guards pipe and view
 	pipe     *pipeline.Pipeline
 	view     View
-	stepTime time.Duration
+	stepTime time.Duration // the detector's last step
 	lastSave time.Time
 
 	ready     chan struct{}
@@ -277,9 +277,9 @@ func (s *Service) Findings() []finding.Finding {
 }
 
 // onStep runs inside the pipeline (s.mu held): keep the view, feed the
-// alerts, save the detector state now and then.
+// alerts, save the detector state every minute of wall time and at every
+// step that raised a finding.
 func (s *Service) onStep(snap telemetry.Snapshot, res *detect.StepResult) error {
-	start := time.Now()
 	s.updateView(snap, res)
 	s.metrics.steps.Add(1)
 	s.metrics.iterations.Add(uint64(res.Iterations))
@@ -294,13 +294,15 @@ func (s *Service) onStep(snap telemetry.Snapshot, res *detect.StepResult) error 
 			}
 		}
 	}
-	if time.Since(s.lastSave) > time.Minute {
+	// A raised finding is saved at once, so that a crash right after the
+	// alert does not make the restarted detector find the same event anew.
+	if len(res.Findings) > 0 || time.Since(s.lastSave) > time.Minute {
 		s.saveState()
 	}
 	if s.opt.OnStep != nil {
 		s.opt.OnStep(snap, res)
 	}
-	s.stepTime = time.Since(start)
+	s.stepTime = res.Elapsed
 	return nil
 }
 
@@ -474,3 +476,6 @@ func (s *Service) clock(ctx context.Context) {
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// Logger returns the service's logger.
+func (s *Service) Logger() zerolog.Logger { return s.log }

@@ -3,40 +3,24 @@ package service
 import (
 	"time"
 
+	"plumbline/daemon/web"
 	"plumbline/model/detect"
 	"plumbline/model/finding"
 	"plumbline/model/telemetry"
 )
 
 // View is the service's current picture for the operator page and the
-// JSON API: the latest step's zone balances and sensor residuals, the
-// last fortnight of nights, and the active and recent findings.
-type View struct {
-	Updated, Step time.Time
-	Zones         []ZoneView
-	Sensors       []SensorView
-	Findings      []finding.Finding
-}
+// JSON API (daemon/web's types): the latest step's zone balances and
+// sensor residuals, the last fortnight of nights, the active and recent
+// findings and the open alerts.
+type View = web.View
 
-// ZoneView is one zone's latest balance and its recent nights.
-type ZoneView struct {
-	ID                                   string
-	InflowLPS, ExpectedLPS, ImbalanceLPS float64
-	Nights                               []NightView
-}
-
-// NightView is one night's minimum flow against the allowance.
-type NightView struct {
-	Night                       time.Time
-	MinLPS, AllowLPS, ExcessLPS float64
-}
-
-// SensorView is one sensor's latest value, model value and residual
-// (canonical units; NaN where unknown).
-type SensorView struct {
-	ID, Quantity, At, Zone, Unit, Quality string
-	Value, Expected, Residual             float64
-}
+// ZoneView, NightView and SensorView are the parts of a View.
+type (
+	ZoneView   = web.ZoneView
+	NightView  = web.NightView
+	SensorView = web.SensorView
+)
 
 // nightsKept is how many nights each zone shows (a fortnight and tonight).
 const nightsKept = 15
@@ -120,5 +104,10 @@ func (s *Service) View() View {
 	}
 	v.Sensors = append([]SensorView(nil), v.Sensors...)
 	v.Findings = append([]finding.Finding(nil), v.Findings...)
+	if s.alerts != nil {
+		if as, err := s.alerts.Alerts(false); err == nil {
+			v.Alerts = as
+		}
+	}
 	return v
 }

@@ -203,6 +203,8 @@ type StepResult struct {
 	Findings, Updated []finding.Finding
 	// Iterations of the two solves.
 	Iterations int
+	// Elapsed is the wall time the step took.
+	Elapsed time.Duration
 }
 
 // ZoneBalance is one zone's water balance at one step, L/s.
@@ -474,6 +476,7 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	if len(snap.Values) != len(d.sens) {
 		return nil, fmt.Errorf("detector: snapshot at %s has %d values for %d sensors", snap.Step.Format(time.RFC3339), len(snap.Values), len(d.sens))
 	}
+	began := time.Now()
 	t := snap.Step
 	hour := t.Truncate(time.Hour)
 	res := &StepResult{Time: t}
@@ -611,6 +614,7 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	d.st.Steps++
 	res.Findings, d.raised = d.raised, nil
 	res.Updated, d.updated = d.updated, nil
+	res.Elapsed = time.Since(began)
 	return res, nil
 }
 
