@@ -22,7 +22,7 @@ import (
 var (
 	colInflow    = color.RGBA{R: 0x1f, G: 0x5f, B: 0xa8, A: 0xff}
 	colExpected  = color.RGBA{R: 0x33, G: 0x33, B: 0x33, A: 0xff}
-	colShade     = color.RGBA{R: 0xe0, G: 0x5a, B: 0x3c, A: 0x55}
+	colShade     = color.NRGBA{R: 0xe0, G: 0x5a, B: 0x3c, A: 0x60}
 	colThreshold = color.RGBA{R: 0xb0, G: 0x20, B: 0x20, A: 0xff}
 	colBurst     = color.RGBA{R: 0xd4, G: 0x8a, B: 0x00, A: 0xff}
 	colOnset     = color.RGBA{R: 0x80, G: 0x00, B: 0x80, A: 0xff}
@@ -36,6 +36,44 @@ var (
 	}
 	colOther = color.RGBA{R: 0xbb, G: 0xbb, B: 0xbb, A: 0xff}
 )
+
+// timeTicks puts time ticks on round UTC hours or days, about six to
+// twelve of them over the axis.
+type timeTicks struct{ format string }
+
+// Ticks implements plot.Ticker.
+func (tt timeTicks) Ticks(min, max float64) []plot.Tick {
+	span := time.Duration((max - min) * float64(time.Second))
+	steps := []time.Duration{time.Hour, 2 * time.Hour, 3 * time.Hour, 6 * time.Hour, 12 * time.Hour, 24 * time.Hour,
+		2 * 24 * time.Hour, 7 * 24 * time.Hour, 14 * 24 * time.Hour, 28 * 24 * time.Hour, 56 * 24 * time.Hour, 91 * 24 * time.Hour}
+	step := steps[len(steps)-1]
+	for _, s := range steps {
+		if span/s <= 10 {
+			step = s
+			break
+		}
+	}
+	minor := step / 2
+	if step > 24*time.Hour {
+		minor = 24 * time.Hour
+	}
+	var out []plot.Tick
+	origin := time.Date(2000, 1, 3, 0, 0, 0, 0, time.UTC) // a Monday: weekly ticks fall on Mondays
+	start := time.Unix(int64(min), 0).UTC()
+	t := origin.Add(start.Sub(origin).Truncate(minor))
+	for ; !t.After(time.Unix(int64(max), 0)); t = t.Add(minor) {
+		x := float64(t.Unix())
+		if x < min {
+			continue
+		}
+		label := ""
+		if t.Sub(origin)%step == 0 {
+			label = t.Format(tt.format)
+		}
+		out = append(out, plot.Tick{Value: x, Label: label})
+	}
+	return out
+}
 
 // plotWidth is the width of every plot.
 const plotWidth = 10 * vg.Inch
@@ -56,7 +94,7 @@ func svgOf(p *plot.Plot, w, h vg.Length) ([]byte, error) {
 		b = b[i:]
 	}
 	// Heat strips are images of a few pixels per cell: keep them sharp.
-	b = bytes.ReplaceAll(b, []byte("<image "), []byte(`<image style="image-rendering:pixelated" `))
+	b = bytes.ReplaceAll(b, []byte("<image "), []byte(`<image preserveAspectRatio="none" style="image-rendering:pixelated" `))
 	return b, nil
 }
 
@@ -68,7 +106,7 @@ func timeAxis(p *plot.Plot, from, to time.Time) {
 	} else if to.Sub(from) > 120*24*time.Hour {
 		format = "2006-01-02"
 	}
-	p.X.Tick.Marker = plot.TimeTicks{Format: format}
+	p.X.Tick.Marker = timeTicks{format: format}
 	p.X.Min = float64(from.Unix())
 	p.X.Max = float64(to.Unix())
 	p.X.Label.Text = "time (UTC)"
