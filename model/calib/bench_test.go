@@ -16,7 +16,7 @@ import (
 // benchProblem builds the speed case: a 5,000-junction town in
 // three zones, 10 roughness groups, 60 sensors, 14 days of hourly
 // snapshots simulated from a true network that differs from the records.
-func benchProblem(b *testing.B) Problem {
+func benchProblem(b testing.TB) Problem {
 	net, err := netgen.Town(netgen.Options{Junctions: 5000, Zones: 3, Seed: 1})
 	if err != nil {
 		b.Fatal(err)

@@ -191,6 +191,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	res.Parameters = m.report(theta, free, A, cov)
 	res.Sensors = m.sensorFits(b, st0.r, cur.r, scale)
 
+	logf("calibration fitted", "elapsed", time.Since(start).String())
 	// Validation on the held-out days.
 	res.Validation.Days = heldDays
 	if len(held) > 0 {
@@ -224,6 +225,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 		res.Validation.Sensors = m.sensorFits(hb, before.r, after.r, nil)
 	}
 
+	logf("calibration validated", "elapsed", time.Since(start).String())
 	// Closed-valve and topology check.
 	if s.SuspectCandidates > 0 {
 		sus, err := m.suspects(ctx, b, cur, priorScreen, free, scale)
@@ -528,19 +530,22 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 				return nil, nil, nil, nil, ctx.Err()
 			}
 			if tcost < cost {
-				if err := m.jacobian(ctx, b, trial, J, nil, nil); err != nil {
-					return nil, nil, nil, nil, err
-				}
-				A, g = normal(J, b.w, trial.r, np)
 				drop := (cost - tcost) / cost
 				cur, theta, cost = trial, trialTheta, tcost
 				lambda = math.Max(lambda/3, 1e-9)
 				accepted = true
 				logf("calibration iteration", "iteration", res.Iterations, "misfit", b.cost(cur.r)/float64(max(1, b.rows)), "lambda", lambda)
 				if drop < m.set.Tolerance || step < 1e-7 {
+					// Converged: the Jacobian of the previous iterate, a
+					// step below the tolerance away, serves for the
+					// covariance (it saves one adjoint pass).
 					res.Status = Converged
 					return cur, theta, A, g, nil
 				}
+				if err := m.jacobian(ctx, b, trial, J, nil, nil); err != nil {
+					return nil, nil, nil, nil, err
+				}
+				A, g = normal(J, b.w, trial.r, np)
 			} else {
 				lambda *= 4
 				if lambda > 1e10 {

@@ -18,10 +18,10 @@ import (
 var suspectFactors = []float64{10, 1000, math.Inf(1)}
 
 // refitCandidates is how many scanned links are refitted, and
-// refitIterations the Levenberg-Marquardt iterations of each refit.
+// refitDamping the Levenberg-Marquardt damping of the refit's step.
 const (
 	refitCandidates = 8
-	refitIterations = 3
+	refitDamping    = 1e-2
 )
 
 // suspects runs the closed-valve and topology check on the fitted state
@@ -139,6 +139,8 @@ func (m *model) suspects(ctx context.Context, b *batch, cur *state, priorScreen 
 	var out []Suspect
 	np := len(m.params)
 	refit := func(tr trial) (*state, error) {
+		// One damped Gauss-Newton step of all free parameters from the
+		// fitted values, with the link changed; kept if it helps.
 		st, err := m.evaluate(ctx, sb, cur.theta, base, tr)
 		if err != nil {
 			return nil, err
@@ -148,9 +150,29 @@ func (m *model) suspects(ctx context.Context, b *batch, cur *state, priorScreen 
 			return nil, err
 		}
 		A, g := normal(Jt, sb.w, st.r, np)
-		var dummy Result
-		fitted, _, _, _, err := m.levenberg(ctx, sb, st, cur.theta, free, Jt, A, g, &dummy, func(string, ...any) {}, tr, refitIterations)
-		return fitted, err
+		var set []int
+		for i, f := range free {
+			if f {
+				set = append(set, i)
+				g[i] -= (cur.theta[i] - m.params[i].prior) / (priorSD * priorSD)
+			}
+		}
+		if len(set) == 0 {
+			return st, nil
+		}
+		delta, _, ok := solveSet(A, g, set, refitDamping)
+		if !ok {
+			return st, nil
+		}
+		th := append([]float64(nil), cur.theta...)
+		for _, i := range set {
+			th[i] = math.Min(m.params[i].hi, math.Max(m.params[i].lo, th[i]+delta[i]))
+		}
+		st2, err := m.evaluate(ctx, sb, th, st, tr)
+		if err != nil || sb.cost(st2.r) >= sb.cost(st.r) {
+			return st, nil
+		}
+		return st2, nil
 	}
 	// The baseline is refitted the same way, so that only the link's
 	// change counts, not the refit on fewer snapshots.
