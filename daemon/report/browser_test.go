@@ -171,3 +171,27 @@ func TestReportInChromium(t *testing.T) {
 		}
 	}
 }
+
+// The browser check itself sees what it must catch: a script error and
+// a resource the page tries to fetch from outside.
+func TestBrowserCheckSeesErrors(t *testing.T) {
+	page := filepath.Join(t.TempDir(), "bad.html")
+	html := `<!DOCTYPE html><html><head><title>bad</title></head><body>
+<img src="http://unreachable.invalid/x.png"><svg width="10" height="10"></svg>
+<script>throw new Error("boom")</script></body></html>`
+	if err := os.WriteFile(page, []byte(html), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	check, errs := openInBrowser(t, page, "")
+	var boom, fetch bool
+	for _, e := range errs {
+		boom = boom || strings.Contains(e, "boom")
+		fetch = fetch || strings.Contains(e, "ERR_NAME_NOT_RESOLVED") || strings.Contains(e, "Failed to load")
+	}
+	if !boom || !fetch {
+		t.Errorf("console errors %q: script error seen %v, outside fetch seen %v", errs, boom, fetch)
+	}
+	if check.SVGs != 1 || check.Small != 1 {
+		t.Errorf("check of a 10×10 svg: %+v", check)
+	}
+}

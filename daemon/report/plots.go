@@ -385,35 +385,47 @@ func (r *Report) heatStrip(zi int, title string) ([]byte, float64, error) {
 	if len(rows) == 0 {
 		return nil, 0, nil
 	}
-	cols := int(r.Summary.To.Sub(b.origin) / b.width)
-	if cols*int(b.width) < int(r.Summary.To.Sub(b.origin)) {
-		cols++
-	}
+	// Cells of at least an hour: a residual's noise averages down and
+	// what stays is model error or a change.
+	group := max(1, int((time.Hour+b.width-1)/b.width))
+	cw := b.width * time.Duration(group)
+	cols := int((r.Summary.To.Sub(b.origin) + cw - 1) / cw)
 	cols = max(cols, 1)
-	// Colour scale: the 98th percentile of |residual| over the cells,
-	// at least 0.2 m (our choice, so noise does not look like a fault).
+	cell := func(l *loggerAcc, ci int) loggerBin {
+		var c loggerBin
+		for k := ci * group; k < (ci+1)*group && k < len(l.bins); k++ {
+			o := l.bins[k]
+			c.n += o.n
+			c.missing += o.missing
+			c.fault += o.fault
+			c.sum += o.sum
+		}
+		return c
+	}
+	// Colour scale: three times the median |residual| over the cells, at
+	// least 0.3 m (our choice: model noise stays pale, a shift of a few
+	// tenths of a metre or more stands out).
 	var abs []float64
 	for _, li := range rows {
-		for _, c := range b.loggers[li].bins {
-			if c.n > 0 {
+		for ci := 0; ci < cols; ci++ {
+			if c := cell(&b.loggers[li], ci); c.n > 0 {
 				abs = append(abs, math.Abs(c.sum/float64(c.n)))
 			}
 		}
 	}
-	scale := 0.2
+	scale := 0.3
 	if len(abs) > 0 {
 		sort.Float64s(abs)
-		scale = math.Max(scale, abs[int(0.98*float64(len(abs)-1))])
+		scale = math.Max(scale, 3*abs[len(abs)/2])
 	}
 	const sy = 4
 	sx := max(1, 1000/cols)
 	img := image.NewRGBA(image.Rect(0, 0, cols*sx, len(rows)*sy))
 	for ri, li := range rows {
-		l := b.loggers[li]
+		l := &b.loggers[li]
 		for ci := 0; ci < cols; ci++ {
 			col := colMissing
-			if ci < len(l.bins) {
-				c := l.bins[ci]
+			if c := cell(l, ci); c.n+c.missing+c.fault > 0 {
 				switch {
 				case c.fault > c.n && c.fault >= c.missing:
 					col = colFault
@@ -430,7 +442,7 @@ func (r *Report) heatStrip(zi int, title string) ([]byte, float64, error) {
 	}
 	p := newPlot(title, "")
 	x0 := float64(b.origin.Unix())
-	x1 := float64(b.origin.Add(time.Duration(cols) * b.width).Unix())
+	x1 := float64(b.origin.Add(time.Duration(cols) * cw).Unix())
 	p.Add(plotter.NewImage(img, x0, 0, x1, float64(len(rows))))
 	timeAxis(p, r.Summary.From, r.Summary.To)
 	p.X.Min, p.X.Max = math.Min(p.X.Min, x0), math.Max(p.X.Max, x1)
