@@ -92,4 +92,6 @@ func benchConfig(b *testing.B, dir string, step time.Duration) string {
 	return p
 }
 
-func fmtDur(d time.Duration) string { return strings.TrimSuffix(strings.TrimSuffix(d.String(), "0s"), "0m") }
+func fmtDur(d time.Duration) string {
+	return strings.TrimSuffix(strings.TrimSuffix(d.String(), "0s"), "0m")
+}
