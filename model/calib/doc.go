@@ -96,9 +96,11 @@
 // After the fit, every open pipe and valve is screened by the
 // linearised fit of a resistance increase to the remaining residuals
 // (at the fitted and at the recorded state); the best candidates are
-// solved with resistance factors 10 and 1000 and shut, and the best few
-// refitted with the link changed (against a baseline refitted the same
-// way). A link whose best factor is at least Settings.SuspectFactor (10)
+// solved with resistance factors 10 and 1000 and shut on a spread
+// subset of Settings.SuspectSnapshots snapshots, and the best eight
+// refitted with the link changed by one damped Gauss-Newton step of all
+// free parameters (against a baseline refitted the same way), so that
+// roughness bent to mimic the valve can move back. A link whose best factor is at least Settings.SuspectFactor (10)
 // and lowers the misfit clearly (by at least 25 and 5 %) is listed as a
 // suspected closed or throttled valve, with the sensors whose residuals
 // fall and the most that roughness within its bounds could explain.
