@@ -115,7 +115,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 		}
 		A, g = normal(J, b.w, st0.r, np)
 		// Identifiability from the recorded network, by sensor accuracy.
-		m.identify(A, free, nil)
+		m.identify(A, free)
 	}
 	cost0 := b.cost(st0.r)
 	res.MisfitBefore = cost0 / float64(max(1, b.rows))
@@ -424,9 +424,9 @@ func solveSet(A *mat.SymDense, rhs []float64, set []int, lambda float64) ([]floa
 }
 
 // identify clears free[i] for every parameter whose standard error
-// (from A + prior, sensor accuracy, or scaled by scale when given) is
-// above its limit, repeating until all left are within.
-func (m *model) identify(A *mat.SymDense, free []bool, _ []float64) {
+// (from A + prior, by sensor accuracy) is above its limit, repeating
+// until all left are within.
+func (m *model) identify(A *mat.SymDense, free []bool) {
 	for range len(free) + 1 {
 		var set []int
 		for i, f := range free {

@@ -175,3 +175,39 @@ func TestFitSeqThins(t *testing.T) {
 		t.Errorf("failing stream: error %v, want one naming the stream's error", err)
 	}
 }
+
+// TestZoneClock checks that a zone's hour knots are local hours of its
+// clock, and that Saturday is a weekend day there.
+func TestZoneClock(t *testing.T) {
+	net := demoTown(t)
+	sensors := netgen.DemoSensors(net)
+	east := time.FixedZone("east", 3*3600)
+	// Friday 22:30 UTC is Saturday 01:30 in the east.
+	step := time.Date(2026, 3, 6, 22, 30, 0, 0, time.UTC)
+	vals := make([]telemetry.Aggregate, len(sensors))
+	for i, s := range sensors {
+		vals[i] = telemetry.Aggregate{Sensor: s.ID, Value: 1, Quality: telemetry.OK}
+	}
+	p := Problem{Network: net, Sensors: sensors, Snapshots: []telemetry.Snapshot{{Step: step, Values: vals}},
+		Zones: map[string]*time.Location{netgen.ZoneHigh: east}}
+	m, fit, _, _, _, _, err := setup(p, Settings{HoldOut: -1}.withDefaults(), func(string) {})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := fit[0]
+	for z, name := range m.zones {
+		wantA, wantB := "demand "+name+" weekday 22:00", "demand "+name+" weekday 23:00"
+		if name == netgen.ZoneHigh {
+			wantA, wantB = "demand "+name+" weekend 01:00", "demand "+name+" weekend 02:00"
+		}
+		if got := m.params[s.za[z]].name; got != wantA {
+			t.Errorf("zone %s: knot before %s, want %s", name, got, wantA)
+		}
+		if got := m.params[s.zb[z]].name; got != wantB {
+			t.Errorf("zone %s: knot after %s, want %s", name, got, wantB)
+		}
+		if !near(s.zf[z], 0.5, 1e-12) {
+			t.Errorf("zone %s: weight of the knot after %.6g, want 0.5", name, s.zf[z])
+		}
+	}
+}
