@@ -67,10 +67,11 @@ var sigJunctions = []string{"J-43", "J-05", "J-11", "J-55", "J-30"}
 // residual a leak leaves, d r / d q at q = 0. Checked against finite
 // differences of two full solves by hand (handResidual), the way
 // derivatives are checked in numerical optimisation (Nocedal & Wright
-// 2006, §8.1): the central difference (r(q) − r(−q))/2q differs from the
-// derivative by O(q²) and the one-sided r(q)/q by O(q), so halving q
-// must quarter the central error and halve the one-sided one; a wrong
-// signature would leave an error that does not shrink with q at all.
+// 2006, Numerical Optimization, §8.1, from memory): the central
+// difference (r(q) − r(−q))/2q differs from the derivative by O(q²) and
+// the one-sided r(q)/q by O(q), so halving q must quarter the central
+// error and halve the one-sided one; a wrong signature would leave an
+// error that does not shrink with q at all.
 func TestLeakSignatureAgainstFiniteDifference(t *testing.T) {
 	d, ev := gridEvidence(t)
 	sg, err := d.signatures(ev)
