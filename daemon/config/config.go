@@ -79,6 +79,8 @@ type Config struct {
 	Alerts yaml.Node
 	HTTP   HTTP
 	Log    Log
+	// Calibration is the `calibration` block (calibration.go).
+	Calibration Calibration
 }
 
 // Sensor returns the sensor with the given id.

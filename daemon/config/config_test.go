@@ -19,6 +19,11 @@ const testdata = "../../testdata/config"
 // message"); the file must produce exactly these errors. A leading "@"
 // means the problem is in another file than the configuration.
 var badCorpus = map[string][]string{
+	"calibration.bad.yaml": {
+		`:8: calibration: every: must be at least 1h0m0s, got 10m`,
+		`:9: calibration: window: must be at least 48h0m0s (a day to fit and a day to validate on), got 24h`,
+		`:10: shift: unknown key in calibration (known: noise_file, every, window)`,
+	},
 	"network-bad.bad.yaml": {
 		"network-bad.bad.yaml:1: network: the network file ../network/unknown-ends.bad.geojson has errors",
 		`@unknown-ends.bad.geojson:8: feature P-2: to: unknown node "J-9"`,

@@ -108,6 +108,8 @@ type rawConfig struct {
 	Alerts  yaml.Node `yaml:"alerts"`
 	HTTP    rawHTTP   `yaml:"http"`
 	Log     rawLog    `yaml:"log"`
+	// Calibration: see calibration.go.
+	Calibration rawCalibration `yaml:"calibration"`
 }
 
 type rawMQTT struct {
@@ -177,14 +179,15 @@ var sections = map[string]struct {
 	what string
 	t    reflect.Type
 }{
-	"rawConfig": {"the configuration", reflect.TypeFor[rawConfig]()},
-	"rawMQTT":   {"mqtt", reflect.TypeFor[rawMQTT]()},
-	"rawZone":   {"a zone", reflect.TypeFor[rawZone]()},
-	"rawStore":  {"store", reflect.TypeFor[rawStore]()},
-	"rawHTTP":   {"http", reflect.TypeFor[rawHTTP]()},
-	"rawLog":    {"log", reflect.TypeFor[rawLog]()},
-	"rawSensor": {"a sensor", reflect.TypeFor[rawSensor]()},
-	"rawDecode": {"a decode block", reflect.TypeFor[rawDecode]()},
+	"rawConfig":      {"the configuration", reflect.TypeFor[rawConfig]()},
+	"rawMQTT":        {"mqtt", reflect.TypeFor[rawMQTT]()},
+	"rawZone":        {"a zone", reflect.TypeFor[rawZone]()},
+	"rawStore":       {"store", reflect.TypeFor[rawStore]()},
+	"rawHTTP":        {"http", reflect.TypeFor[rawHTTP]()},
+	"rawLog":         {"log", reflect.TypeFor[rawLog]()},
+	"rawSensor":      {"a sensor", reflect.TypeFor[rawSensor]()},
+	"rawDecode":      {"a decode block", reflect.TypeFor[rawDecode]()},
+	"rawCalibration": {"calibration", reflect.TypeFor[rawCalibration]()},
 }
 
 // keysOf lists the yaml keys of a raw struct type.
@@ -441,6 +444,7 @@ func (l *loader) load(data []byte) *Config {
 	c.Alerts = raw.Alerts
 	l.http(c, &raw, &doc)
 	l.log(c, &raw, &doc)
+	l.calibration(c, &raw, &doc)
 	return c
 }
 
