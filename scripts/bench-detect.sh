@@ -37,7 +37,10 @@ echo "bench-detect: building" >&2
 # commit; the demo's is also committed for runs by hand).
 "$GO" run ./testdata/scenarios/gen -true-networks "$work/true"
 
-grep -v '^#' "$suite" | { if [[ -n "$ONLY" ]]; then grep -E -- "$ONLY" || true; else cat; fi; } >"$work/runs.tsv"
+# Longest runs first (the 5k town's, then by end time), so the last ones
+# to finish are short.
+grep -v '^#' "$suite" | { if [[ -n "$ONLY" ]]; then grep -E -- "$ONLY" || true; else cat; fi; } |
+	sort -t "$(printf '\t')" -k1,1r -k7,7r >"$work/runs.tsv"
 total=$(wc -l <"$work/runs.tsv")
 if [[ "$total" -eq 0 ]]; then
 	echo "bench-detect: no run matches BENCH_ONLY=$ONLY" >&2
@@ -81,5 +84,9 @@ tr '\t' '\n' <"$work/runs.tsv" | xargs -d '\n' -n 7 -P "$JOBS" bash -c 'one_run 
 echo "bench-detect: runs done in $(($(date +%s) - started)) s" >&2
 { head -2 "$suite"; cat "$work/runs.tsv"; } >"$work/suite.tsv"
 "$work/benchdetect" -suite "$work/suite.tsv" -results "$work/res"
+# CPU time of everything this script waited for (bash's times: the
+# second line is the children's user and system time).
+times >"$work/times"
+cpu=$(tail -1 "$work/times")
 echo
-echo "($total runs on $(nproc) cores, $JOBS at a time, in $(($(date +%s) - started)) s)"
+echo "($total runs on $(nproc) cores, $JOBS at a time, in $(($(date +%s) - started)) s; CPU user, system: $cpu)"

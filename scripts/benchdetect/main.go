@@ -35,8 +35,8 @@
 //     7-day learning period), for the quiet scenarios alone and for all.
 //   - a blockage "found": detected, or any finding of another kind raised
 //     in its zone after its start; a sensor fault "raised a leak or
-//     blockage": its scenario has a leak or blockage finding raised after
-//     the fault started.
+//     blockage": its run has a leak or blockage finding in the sensor's
+//     zone raised after the fault started.
 package main
 
 import (
@@ -135,6 +135,7 @@ type outcome struct {
 	wrongKind bool
 	loggers   int
 	burst     bool
+	net       string
 }
 
 // tally is everything of one condition.
@@ -146,6 +147,11 @@ type tally struct {
 	quietZoneDays, allZoneDays float64
 	falseByKind                map[finding.Kind]int
 	quietFalseByKind           map[finding.Kind]int
+	// Per network: runs, false findings and zone-days over all runs.
+	nets        []string
+	netRuns     map[string]int
+	netFalse    map[string]int
+	netZoneDays map[string]float64
 }
 
 func run(w io.Writer, suitePath, results string) error {
@@ -173,7 +179,8 @@ func run(w io.Writer, suitePath, results string) error {
 		}
 		t, ok := tallies[r.cond]
 		if !ok {
-			t = &tally{falseByKind: map[finding.Kind]int{}, quietFalseByKind: map[finding.Kind]int{}}
+			t = &tally{falseByKind: map[finding.Kind]int{}, quietFalseByKind: map[finding.Kind]int{},
+				netRuns: map[string]int{}, netFalse: map[string]int{}, netZoneDays: map[string]float64{}}
 			tallies[r.cond] = t
 			conds = append(conds, r.cond)
 		}
@@ -196,6 +203,10 @@ func (t *tally) add(r runSpec, s *site, results string) error {
 	dir := filepath.Join(results, r.net, r.cond, r.name())
 	id := r.net + "/" + r.cond + "/" + r.name()
 	t.runs = append(t.runs, id)
+	if t.netRuns[r.net] == 0 {
+		t.nets = append(t.nets, r.net)
+	}
+	t.netRuns[r.net]++
 	data, err := os.ReadFile(filepath.Join(dir, "score.json"))
 	if err != nil {
 		why := "no score.json"
@@ -221,6 +232,8 @@ func (t *tally) add(r runSpec, s *site, results string) error {
 	nFalse := len(rep.FalseFindings)
 	t.allFalse += nFalse
 	t.allZoneDays += zoneDays
+	t.netFalse[r.net] += nFalse
+	t.netZoneDays[r.net] += zoneDays
 	for _, f := range rep.FalseFindings {
 		t.falseByKind[f.Kind]++
 	}
@@ -234,19 +247,20 @@ func (t *tally) add(r runSpec, s *site, results string) error {
 
 	for i, e := range sc.Events {
 		res := rep.Events[i]
-		o := outcome{class: classOf(&e, s), res: res, zone: res.Zone, loggers: s.loggers[res.Zone], burst: e.Burst}
+		o := outcome{class: classOf(&e, s), res: res, zone: res.Zone, loggers: s.loggers[res.Zone], burst: e.Burst, net: r.net}
 		if res.Detected && res.Raised != nil {
 			o.nights = nightOf(s.cfg, res.Zone, res.Start, *res.Raised)
 		}
 		o.found = res.Detected
 		for _, f := range rep.FalseFindings {
-			if !f.Raised.Before(res.Start) && (f.Zone == res.Zone || f.Zone == "") {
-				if e.Kind == finding.Blockage {
-					o.found = true
-				}
+			if f.Raised.Before(res.Start) || (f.Zone != res.Zone && f.Zone != "") {
+				continue
 			}
-			if e.Kind == finding.SensorFault && !f.Raised.Before(res.Start) && (f.Kind == finding.Leak || f.Kind == finding.Blockage) {
-				o.wrongKind = true
+			switch e.Kind {
+			case finding.Blockage:
+				o.found = true
+			case finding.SensorFault:
+				o.wrongKind = o.wrongKind || f.Kind == finding.Leak || f.Kind == finding.Blockage
 			}
 		}
 		t.outcomes = append(t.outcomes, o)
@@ -410,6 +424,16 @@ func (t *tally) print(w io.Writer, cond string) {
 	fmt.Fprintf(w, "false findings: quiet runs %d in %.0f zone-days = %s per zone per 30 days (%s); all runs %d in %.0f zone-days = %s (%s)\n",
 		t.quietFalse, t.quietZoneDays, rate(t.quietFalse, t.quietZoneDays), kinds(t.quietFalseByKind),
 		t.allFalse, t.allZoneDays, rate(t.allFalse, t.allZoneDays), kinds(t.falseByKind))
+	sort.Strings(t.nets)
+	for _, n := range t.nets {
+		r := t.rows(func(o outcome) bool { return o.net == n })
+		lk := t.rows(func(o outcome) bool {
+			return o.net == n && (o.class == classSmall || o.class == classLarge || o.class == classRise)
+		})
+		fmt.Fprintf(w, "network %s: %d runs, %d events, %d detected (%s), leaks %d of %d (%s), false findings %s per zone per 30 days (all runs)\n",
+			n, t.netRuns[n], r.events, r.detected, pct(r.detected, r.events), lk.detected, lk.events, pct(lk.detected, lk.events),
+			rate(t.netFalse[n], t.netZoneDays[n]))
+	}
 	blk := t.rows(func(o outcome) bool {
 		return o.class == classMainLow || o.class == classMainHigh || o.class == classValve
 	})

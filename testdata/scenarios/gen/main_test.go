@@ -12,6 +12,7 @@ import (
 
 	"plumbline/daemon/config"
 	"plumbline/model/finding"
+	"plumbline/model/hydraulic"
 	"plumbline/model/network"
 	scen "plumbline/model/scenario"
 	"plumbline/model/telemetry"
@@ -276,5 +277,50 @@ func TestDayFlowsMassBalance(t *testing.T) {
 	}
 	if diff := math.Abs(supplied - used); diff > 1e-6*used {
 		t.Errorf("reservoirs supply %.6f L/s on average, junctions use %.6f L/s: difference %.3g, tolerance %.3g", supplied, used, diff, 1e-6*used)
+	}
+}
+
+// TestTown5kZoneBalance checks the zone balances of configs/town-5k.yaml
+// by conservation of mass: with the network solved at base demand, each
+// zone's metered inlets less its metered outlets equal the demand of its
+// junctions (continuity over the zone; a physical law).
+func TestTown5kZoneBalance(t *testing.T) {
+	cfg, err := config.LoadFile(filepath.Join(repo, "configs/town-5k.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	net := cfg.Network
+	solver, err := hydraulic.NewSolver(net, hydraulic.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sol, err := solver.Solve(nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	flowOf := func(id string) float64 {
+		s, ok := cfg.Sensor(id)
+		if !ok {
+			t.Fatalf("no sensor %s", id)
+		}
+		k, _ := net.LinkIndex(s.At)
+		return sol.Flow[k]
+	}
+	for _, z := range cfg.Zones {
+		var balance, demand float64
+		for _, id := range z.Inlets {
+			balance += flowOf(id)
+		}
+		for _, id := range z.Outlets {
+			balance -= flowOf(id)
+		}
+		for i := range net.Nodes {
+			if nd := &net.Nodes[i]; nd.Kind == network.Junction && nd.Zone == z.ID {
+				demand += sol.Demand[i]
+			}
+		}
+		if diff := math.Abs(balance - demand); diff > 1e-6*demand {
+			t.Errorf("zone %s: inlets - outlets = %.6f L/s, demand %.6f L/s: difference %.3g, tolerance %.3g", z.ID, balance, demand, diff, 1e-6*demand)
+		}
 	}
 }
