@@ -29,6 +29,7 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	src := fs.String("source", "store", "readings file (CSV or line protocol) or \"store\"")
 	out := fs.String("out", "", "write the calibrated network here (GeoJSON)")
 	report := fs.String("report", "", "write the calibration report here (.json for JSON, else text)")
+	noise := fs.String("noise", "", "write the residual scatter by sensor and hour here (JSON; default: beside --out, <name>.noise.json)")
 	interval := fs.Duration("interval", time.Hour, "time between the snapshots the fit uses")
 	asJSON := fs.Bool("json", false, "print the report as JSON on stdout")
 	if err := parseFlags(fs, args); err != nil {
@@ -105,6 +106,20 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		if err := network.WriteFile(*out, res.Network); err != nil {
 			return err
 		}
+		if *noise == "" {
+			*noise = strings.TrimSuffix(*out, filepath.Ext(*out)) + ".noise.json"
+		}
+	}
+	if *noise != "" {
+		// The detector's noise by hour of day: the calibrated network's
+		// residuals over the whole window (config calibration.noise_file).
+		ev, err := calib.Evaluate(ctx, calib.Problem{Network: res.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones}, calib.Settings{Interval: *interval})
+		if err != nil {
+			return fmt.Errorf("noise file: %w", err)
+		}
+		if err := calib.WriteNoiseFile(*noise, calib.NoiseFrom(ev, end)); err != nil {
+			return err
+		}
 	}
 	if *report != "" {
 		f, err := os.Create(*report)
@@ -132,6 +147,9 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	if *out != "" {
 		fmt.Fprintf(stdout, "\ncalibrated network written to %s (use it as the configuration's network once the report satisfies you)\n", *out)
+	}
+	if *noise != "" {
+		fmt.Fprintf(stdout, "residual scatter by hour written to %s (the configuration's calibration.noise_file)\n", *noise)
 	}
 	return nil
 }

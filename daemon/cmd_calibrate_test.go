@@ -113,6 +113,39 @@ func TestCalibrateRecoversAgedPipes(t *testing.T) {
 	if _, err := network.ReadFile(filepath.Join(dir, "calibrated.geojson")); err != nil {
 		t.Errorf("calibrated network does not read back: %v", err)
 	}
+	// Beside the network: the residual scatter by hour. A residual holds
+	// at least the instrument's noise, whose σ is the stated accuracy
+	// (sim adds Gaussian noise of the accuracy), so no logger's mean
+	// hourly σ can lie far below it.
+	tab, err := calib.ReadNoiseFile(filepath.Join(dir, "calibrated.noise.json"))
+	if err != nil {
+		t.Fatalf("noise file: %v", err)
+	}
+	pressures := 0
+	for _, sn := range tab.Sensors {
+		if sn.Unit != "m" || sn.Accuracy <= 0 {
+			continue
+		}
+		var sum float64
+		n := 0
+		for _, v := range sn.SigmaByHour {
+			if !math.IsNaN(v) {
+				sum += v
+				n++
+			}
+		}
+		if n < 20 {
+			t.Errorf("noise file: %s has σ for %d hours, want at least 20 of 24 after 6 days", sn.ID, n)
+			continue
+		}
+		if mean := sum / float64(n); mean < 0.7*sn.Accuracy {
+			t.Errorf("noise file: %s mean hourly σ %.3f m is below its instrument accuracy %.3f m", sn.ID, mean, sn.Accuracy)
+		}
+		pressures++
+	}
+	if pressures == 0 {
+		t.Errorf("noise file lists no logger in m: %+v", tab)
+	}
 	if !strings.Contains(out.String(), "RMSE") && !strings.Contains(strings.ToLower(out.String()), "rmse") {
 		t.Errorf("the text report names no RMSE:\n%s", out.String())
 	}

@@ -11,7 +11,9 @@ import (
 
 	"plumbline/daemon/config"
 	"plumbline/daemon/pipeline"
+	"plumbline/daemon/service"
 	"plumbline/ingest/readfile"
+	"plumbline/model/calib"
 	"plumbline/model/detect"
 	"plumbline/model/finding"
 	"plumbline/model/telemetry"
@@ -163,6 +165,17 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	p, err := pipeline.New(popt)
 	if err != nil {
 		return nil, err
+	}
+	// The detector starts from the calibration's residual scatter by
+	// hour of day when the configuration names a noise file.
+	if nf := cfg.Calibration.NoiseFile; nf != "" {
+		tab, err := calib.ReadNoiseFile(nf)
+		if err != nil {
+			return nil, err
+		}
+		if _, err := service.SeedNoise(p.Detector(), tab, cfg.Step); err != nil {
+			fmt.Fprintf(progress, "warning: %v\n", err)
+		}
 	}
 	start := time.Now()
 	var first, last time.Time
