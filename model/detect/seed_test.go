@@ -109,3 +109,66 @@ func TestSeedNoiseBadInput(t *testing.T) {
 		}
 	}
 }
+
+// TestRebaseAfterModelChange: a detector learns a week on a model whose
+// pipes are smoother than the truth (its residuals carry the model's
+// bias), then its state moves into a detector built on the true network,
+// as when the service adopts a recalibration. The residual levels jump by
+// the bias it no longer has. After Rebase the baselines take the new
+// levels and a quiet week raises nothing; without it the same jump is
+// reported (which shows the check can fail).
+func TestRebaseAfterModelChange(t *testing.T) {
+	recorded := gridTown()
+	truth := recorded.Clone()
+	for l := range truth.Links {
+		truth.Links[l].Roughness *= 0.7 // older than the records say
+	}
+	snaps := simulate(t, truth, 16, 3, nil)
+	half := 8 * 24 * 12
+	a, err := New(gridConfig(recorded))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fs := detectAll(t, a, snaps[:half]); len(fs) > 0 {
+		t.Fatalf("findings while learning: %+v", fs)
+	}
+	st, err := a.State()
+	if err != nil {
+		t.Fatal(err)
+	}
+	run := func(rebase bool) []string {
+		b, err := New(gridConfig(truth))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := b.Restore(st); err != nil {
+			t.Fatal(err)
+		}
+		if rebase {
+			if err := b.Rebase(recorded); err != nil {
+				t.Fatal(err)
+			}
+		}
+		var out []string
+		for _, f := range detectAll(t, b, snaps[half:]) {
+			out = append(out, string(f.Kind)+" "+f.Evidence)
+		}
+		return out
+	}
+	for _, f := range run(true) {
+		t.Errorf("after Rebase, a quiet week raised: %s", f)
+	}
+	if fs := run(false); len(fs) == 0 {
+		t.Errorf("without Rebase the model change raised nothing: the check cannot tell")
+	}
+	// Another network is refused, and nothing changes.
+	b, _ := New(gridConfig(truth))
+	other := gridTown()
+	other.Nodes[3].ID = "J-other"
+	if err := b.Rebase(other); err == nil || !strings.Contains(err.Error(), "J-other") {
+		t.Errorf("Rebase(another network): error %v, want one naming J-other", err)
+	}
+	if err := b.Rebase(nil); err == nil {
+		t.Errorf("Rebase(nil): no error")
+	}
+}
