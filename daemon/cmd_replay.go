@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime/pprof"
 	"time"
 
 	"plumbline/daemon/config"
@@ -58,8 +59,20 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	asJSON := fs.Bool("json", false, "print the result as JSON")
 	quiet := fs.Bool("quiet", false, "no progress line on stderr")
 	reportOut := fs.String("report", "", "also write the retrospective report (HTML, with .json and .csv beside it)")
+	cpuProfile := fs.String("cpuprofile", "", "write a CPU profile of the replay to this file (for go tool pprof)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
+	}
+	if *cpuProfile != "" {
+		f, err := os.Create(*cpuProfile)
+		if err != nil {
+			return err
+		}
+		defer f.Close()
+		if err := pprof.StartCPUProfile(f); err != nil {
+			return err
+		}
+		defer pprof.StopCPUProfile()
 	}
 	if o.configPath == "" {
 		fs.Usage()

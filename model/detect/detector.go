@@ -119,6 +119,9 @@ type sensorState struct {
 	BadSteps  int
 	Spikes    []time.Time
 	Quiet     int // consecutive quiet hours while excluded
+	// Good and GoodAt are a flow meter's last usable value and its step.
+	Good   float64
+	GoodAt time.Time
 }
 
 type zoneState struct {
@@ -308,10 +311,10 @@ func New(cfg Config) (*Detector, error) {
 	}
 	for zi, z := range cfg.Zones {
 		for _, id := range z.Inlets {
-			d.zones[zi].inlets = append(d.zones[zi].inlets, d.meterFor(zi, d.bySensor[id]))
+			d.zones[zi].inlets = append(d.zones[zi].inlets, d.meterFor(zi, d.bySensor[id], false))
 		}
 		for _, id := range z.Outlets {
-			d.zones[zi].outlets = append(d.zones[zi].outlets, d.meterFor(zi, d.bySensor[id]))
+			d.zones[zi].outlets = append(d.zones[zi].outlets, d.meterFor(zi, d.bySensor[id], true))
 		}
 	}
 	for si := range d.sens {
@@ -327,11 +330,20 @@ func New(cfg Config) (*Detector, error) {
 	return d, nil
 }
 
-// meterFor orients a boundary flow meter: flow along its link towards a
-// node of the zone is inflow.
-func (d *Detector) meterFor(zi, si int) meter {
+// meterFor orients a boundary flow meter from the topology: flow along
+// its link towards a node of the zone is inflow. A meter whose link does
+// not cross the boundary (one in series with a boundary link, such as a
+// pump's meter on its rising main) takes the side it is listed on: an
+// inlet counts its flow as inflow, an outlet as outflow.
+func (d *Detector) meterFor(zi, si int, outlet bool) meter {
 	l := d.net.Links[d.sens[si].link]
-	if d.nodeZone[l.From] == zi && d.nodeZone[l.To] != zi {
+	from, to := d.nodeZone[l.From] == zi, d.nodeZone[l.To] == zi
+	switch {
+	case to && !from:
+		return meter{sensor: si, sign: 1}
+	case from && !to:
+		return meter{sensor: si, sign: -1}
+	case outlet:
 		return meter{sensor: si, sign: -1}
 	}
 	return meter{sensor: si, sign: 1}
@@ -624,21 +636,35 @@ func usable(a telemetry.Aggregate) bool {
 
 func (d *Detector) zoneInflow(zi int, snap telemetry.Snapshot) (float64, bool) {
 	q := 0.0
-	for _, m := range d.zones[zi].inlets {
-		a := snap.Values[m.sensor]
-		if !usable(a) || d.st.Sensors[m.sensor].Excluded {
-			return 0, false
+	for _, list := range [][]meter{d.zones[zi].inlets, d.zones[zi].outlets} {
+		for _, m := range list {
+			v, ok := d.meterValue(m.sensor, snap)
+			if !ok {
+				return 0, false
+			}
+			q += m.sign * v
 		}
-		q += m.sign * a.Value
-	}
-	for _, m := range d.zones[zi].outlets {
-		a := snap.Values[m.sensor]
-		if !usable(a) || d.st.Sensors[m.sensor].Excluded {
-			return 0, false
-		}
-		q -= math.Abs(m.sign * a.Value)
 	}
 	return q, true
+}
+
+// meterValue is a flow meter's value for the balance: this step's, or,
+// when ingest flagged this one (a spike, a gap), the last usable value if
+// it is at most three steps old. One doubtful reading among a zone's many
+// meters must not blank the whole balance.
+func (d *Detector) meterValue(si int, snap telemetry.Snapshot) (float64, bool) {
+	ss := &d.st.Sensors[si]
+	if ss.Excluded {
+		return 0, false
+	}
+	if a := snap.Values[si]; usable(a) {
+		ss.Good, ss.GoodAt = a.Value, snap.Step
+		return a.Value, true
+	}
+	if !ss.GoodAt.IsZero() && snap.Step.Sub(ss.GoodAt) <= 3*d.cfg.Step {
+		return ss.Good, true
+	}
+	return 0, false
 }
 
 // localHour is the hour of day of t on the zone's clock.
