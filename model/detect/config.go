@@ -35,7 +35,7 @@ type Config struct {
 	// Step is the model step of the snapshots (default 5 minutes).
 	Step time.Duration
 	// FalseAlarmDays is the designed mean time between false alarms of
-	// each test in one zone, days (default 180). Each zone runs a night
+	// each test in one zone, days (default 365). Each zone runs a night
 	// test, a burst test and one residual test per sensor.
 	FalseAlarmDays float64
 	// LearnNights is how many nights the night-flow baseline needs before
@@ -54,7 +54,7 @@ func (c *Config) defaults() {
 		c.Step = 5 * time.Minute
 	}
 	if c.FalseAlarmDays <= 0 {
-		c.FalseAlarmDays = 180
+		c.FalseAlarmDays = 365
 	}
 	if c.LearnNights <= 0 {
 		c.LearnNights = 7
