@@ -3,6 +3,7 @@ package service
 import (
 	"errors"
 	"fmt"
+	"os"
 	"time"
 
 	"plumbline/model/calib"
@@ -35,4 +36,30 @@ func SeedNoise(det *detect.Detector, tab *calib.NoiseTable, step time.Duration) 
 		return n, fmt.Errorf("noise table: %w", errors.Join(errs...))
 	}
 	return n, nil
+}
+
+// seedNoise seeds a fresh detector from the adopted calibration's
+// residual scatter (data_dir/calibrated.noise.json) when the pipeline
+// starts on it, else from the configuration's calibration.noise_file.
+// A missing or bad file is logged; the detector then learns alone.
+func (s *Service) seedNoise(adopted bool) {
+	path := s.cfg.Calibration.NoiseFile
+	if adopted {
+		if _, err := os.Stat(s.calibratedNoisePath()); err == nil {
+			path = s.calibratedNoisePath()
+		}
+	}
+	if path == "" {
+		return
+	}
+	tab, err := calib.ReadNoiseFile(path)
+	if err != nil {
+		s.log.Warn().Err(err).Msg("detector noise not seeded")
+		return
+	}
+	n, err := SeedNoise(s.pipe.Detector(), tab, s.cfg.Step)
+	if err != nil {
+		s.log.Warn().Err(err).Msg("noise table: some sensors not seeded")
+	}
+	s.log.Info().Str("file", path).Int("sensors", n).Msg("detector noise seeded from calibration residuals")
 }

@@ -48,6 +48,7 @@ import (
 	"plumbline/ingest/store"
 	"plumbline/model/detect"
 	"plumbline/model/finding"
+	"plumbline/model/network"
 	"plumbline/model/telemetry"
 )
 
@@ -72,6 +73,10 @@ type Options struct {
 	// OnStep, when set, sees every step after the service did (tests,
 	// the demo's progress line).
 	OnStep func(telemetry.Snapshot, *detect.StepResult)
+	// CalibrationEvery and CalibrationWindow override the configuration's
+	// calibration.every and window (tests; a negative interval turns
+	// periodic recalibration off).
+	CalibrationEvery, CalibrationWindow time.Duration
 }
 
 // Service is the running plumbline service. Its exported methods are
@@ -100,6 +105,13 @@ type Service struct {
 	view     View
 	stepTime time.Duration // the detector's last step
 	lastSave time.Time
+	// net is the network the pipeline runs on (the recorded one or an
+	// adopted calibration); lastStep the end of the last step processed;
+	// lastDecision the last recalibration's (recalibrate.go).
+	net          *network.Network
+	lastStep     time.Time
+	lastDecision *Decision
+	recalMu      sync.Mutex // one recalibration at a time
 
 	ready     chan struct{}
 	readyOnce sync.Once
@@ -124,17 +136,30 @@ func New(cfg *config.Config, opt Options) (*Service, error) {
 	if err = s.openStore(); err != nil {
 		return nil, err
 	}
-	s.pipe, err = pipeline.New(pipeline.Options{Config: cfg, Store: s.sink, OnStep: s.onStep})
+	pcfg := cfg
+	net, adopted := s.startNetwork()
+	if net != cfg.Network {
+		c := *cfg
+		c.Network = net
+		pcfg = &c
+	}
+	s.net = net
+	s.pipe, err = pipeline.New(pipeline.Options{Config: pcfg, Store: s.sink, OnStep: s.onStep})
 	if err != nil {
 		s.closeStore()
 		return nil, err
 	}
+	restored := false
 	if b, err := os.ReadFile(s.statePath()); err == nil {
 		if err := s.pipe.Detector().Restore(b); err != nil {
 			s.log.Warn().Err(err).Msg("detector state not restored; starting fresh")
 		} else {
+			restored = true
 			s.log.Info().Str("file", s.statePath()).Msg("detector state restored")
 		}
+	}
+	if !restored {
+		s.seedNoise(adopted)
 	}
 	decs := map[string]decode.Decoder{}
 	for id, d := range cfg.Decode {
@@ -281,6 +306,7 @@ func (s *Service) Findings() []finding.Finding {
 // step that raised a finding.
 func (s *Service) onStep(snap telemetry.Snapshot, res *detect.StepResult) error {
 	s.updateView(snap, res)
+	s.lastStep = snap.Step.Add(s.cfg.Step)
 	s.metrics.steps.Add(1)
 	s.metrics.iterations.Add(uint64(res.Iterations))
 	for _, f := range res.Findings {
@@ -403,6 +429,9 @@ func (s *Service) Run(ctx context.Context) error {
 	}
 	if s.alerts != nil {
 		backG.Go(func() error { return s.alerts.Run(backCtx) })
+	}
+	if every := s.recalEvery(); every > 0 {
+		backG.Go(func() error { s.recalibrateLoop(backCtx, every); return nil })
 	}
 	backG.Go(func() error {
 		if err := s.httpSrv.Serve(ln); !errors.Is(err, http.ErrServerClosed) {
