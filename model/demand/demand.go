@@ -61,13 +61,25 @@ func Base(net *network.Network, t time.Time, zoneLoc map[string]*time.Location, 
 	if dst == nil {
 		dst = make([]float64, len(net.Nodes))
 	}
+	// Each (pattern, zone clock) pair is looked up once per call.
+	type key struct {
+		pattern string
+		loc     *time.Location
+	}
+	mult := map[key]float64{}
 	for i := range net.Nodes {
 		n := &net.Nodes[i]
 		if n.Kind != network.Junction || n.Demand == 0 {
 			dst[i] = 0
 			continue
 		}
-		dst[i] = n.Demand * PatternAt(net, n.Pattern, t, zoneLoc[n.Zone])
+		k := key{n.Pattern, zoneLoc[n.Zone]}
+		m, ok := mult[k]
+		if !ok {
+			m = PatternAt(net, n.Pattern, t, k.loc)
+			mult[k] = m
+		}
+		dst[i] = n.Demand * m
 	}
 	return dst
 }

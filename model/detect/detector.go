@@ -8,6 +8,8 @@ import (
 	"math"
 	"time"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"plumbline/model/demand"
 	"plumbline/model/finding"
 	"plumbline/model/hydraulic"
@@ -37,6 +39,7 @@ type Detector struct {
 	zoneLoc  map[string]*time.Location
 
 	base    []float64 // base × pattern per node, this step
+	leaky   bool      // some junction of the network has a leak coefficient
 	cond    hydraulic.Conditions
 	prevExp *hydraulic.Solution
 	prevMat *hydraulic.Solution
@@ -249,6 +252,9 @@ func New(cfg Config) (*Detector, error) {
 	}
 	d := &Detector{cfg: cfg, net: cfg.Network, solver: solver, bySensor: map[string]int{}, zoneLoc: map[string]*time.Location{}}
 	d.nodeZone = make([]int, len(d.net.Nodes))
+	for i := range d.net.Nodes {
+		d.leaky = d.leaky || d.net.Nodes[i].LeakCoeff > 0
+	}
 	zoneIdx := map[string]int{}
 	for i, z := range cfg.Zones {
 		zoneIdx[z.ID] = i
@@ -535,15 +541,22 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		}
 	}
 
-	// Expected-consumption solve: demand from the patterns alone.
+	// Expected-consumption solve: demand from the patterns alone. Its one
+	// use is the leakage the model itself carries (junction leak
+	// coefficients of the network file, FAVAD); without any, expected
+	// consumption is the patterns' demand and the solve is skipped.
 	d.base = demand.Base(d.net, t, d.zoneLoc, d.base)
 	copy(d.cond.Demand, d.base)
-	exp, err := d.solver.Solve(&d.cond, d.prevExp)
-	if err != nil {
-		return nil, fmt.Errorf("detector at %s: expected-consumption solve: %w", t.Format(time.RFC3339), err)
+	var modelLeak []float64
+	if d.leaky {
+		exp, err := d.solver.Solve(&d.cond, d.prevExp)
+		if err != nil {
+			return nil, fmt.Errorf("detector at %s: expected-consumption solve: %w", t.Format(time.RFC3339), err)
+		}
+		d.prevExp = exp
+		res.Iterations += exp.Iterations
+		modelLeak = exp.Leak
 	}
-	d.prevExp = exp
-	res.Iterations += exp.Iterations
 
 	// Zone balances and the inflow-matched multipliers.
 	mult := make([]float64, len(d.zones))
@@ -554,7 +567,9 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		dem, leak := 0.0, 0.0
 		for _, j := range d.zones[zi].junctions {
 			dem += d.base[j]
-			leak += exp.Leak[j]
+			if modelLeak != nil {
+				leak += modelLeak[j]
+			}
 		}
 		zb.ExpectedLPS = dem + leak
 		mult[zi] = 1
@@ -751,8 +766,12 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 			// (the prediction interval of a normal sample, e.g. Hahn &
 			// Meeker 1991), at least 0.05 L/s or 1% of the night flow
 			// (common practice for meter resolution, not from a source).
+			// With a week or two of nights the scatter itself is uncertain:
+			// widen it by the Student t quantile over the normal one at
+			// 97.5% (Student 1908), 1.25 for 7 nights, 1.05 for 28.
 			n := float64(len(zs.Nights))
-			sigma := math.Max(sd*math.Sqrt(1+1/n), math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
+			tq := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: n - 1}.Quantile(0.975) / 1.959964
+			sigma := math.Max(sd*math.Sqrt(1+1/n)*tq, math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
 			z := (adj - med) / sigma
 			if zs.Repair.Update(zs.NightStart, -z) {
 				d.repaired(zi, zs.Repair.Shift()*sigma, t)

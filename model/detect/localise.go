@@ -118,7 +118,7 @@ func (d *Detector) fitOpenFraction(l int, ev evidence) (float64, float64) {
 		}
 		return e
 	}
-	f, e := golden(sse, 0.01, 1, 25)
+	f, e := golden(sse, 0.01, 1, 12)
 	return f, e + ev.wI*ev.dI*ev.dI
 }
 
@@ -188,7 +188,7 @@ func (d *Detector) refineLeaks(ev evidence, cands []ranked, q float64) []ranked 
 			}
 			return misfit(cd.idx, qq, m)
 		}
-		best, e := golden(f, 0, hi, 14)
+		best, e := golden(f, 0, hi, 9)
 		out = append(out, ranked{idx: cd.idx, sse: e, size: best})
 	}
 	return out
