@@ -14,6 +14,12 @@
 #                (e.g. 'demo.*leak'); the table then covers those alone
 #   BENCH_KEEP   1: keep the work folder (truth, findings, scores, logs;
 #                readings are always removed: rerun simulate to get them)
+#   BENCH_CALIBRATED  0: skip the third condition, realistic-calibrated:
+#                each realistic run's readings of the learning period
+#                (before --from, no event in it) go through
+#                `plumbline calibrate`, and the same readings are replayed
+#                with the calibrated network and its residual scatter by
+#                hour (a copy of the configuration pointing at both)
 set -euo pipefail
 
 cd "$(dirname "$0")/.."
@@ -72,17 +78,58 @@ one_run() {
 		cat "$dir"/*.log >"$dir/failed" 2>/dev/null || true
 		status=FAILED
 	fi
+	if [[ "$cond" == realistic && "${BENCH_CALIBRATED:-1}" != 0 && -f "$dir/readings.csv" ]]; then
+		calibrated_run "$net" "$scen" "$network" "$config" "$from" "$to" "$dir/readings.csv"
+	fi
 	rm -f "$dir/readings.csv"
 	echo "bench-detect: $net/$cond/$name $status in $(($(date +%s) - t0)) s" >&2
 }
-export -f one_run
+
+# calibrated_run replays a realistic run's readings with the network
+# calibrated on its learning period (everything before the score's
+# --from): the third condition, realistic-calibrated.
+calibrated_run() {
+	local net=$1 scen=$2 network=$3 config=$4 from=$5 to=$6 readings=$7
+	local name dir t0 cfgdir
+	name=$(basename "$scen" .yaml)
+	dir="$WORK/res/$net/realistic-calibrated/$name"
+	mkdir -p "$dir"
+	t0=$(date +%s)
+	cfgdir=$(cd "$(dirname "$config")" && pwd)
+	# A copy of the configuration beside the calibrated network: network
+	# and data_dir made absolute, the noise file added.
+	sed -e "s|^network: *\(.*\)$|network: $cfgdir/\1|" -e "s|^data_dir: *\(.*\)$|data_dir: $dir/data|" \
+		"$config" >"$dir/recorded.yaml"
+	if "$WORK/plumbline" calibrate --config "$dir/recorded.yaml" --source "$readings" --to "$from" \
+		--out "$dir/calibrated.geojson" --report "$dir/calibration.json" >"$dir/calibrate.log" 2>&1 &&
+		sed -e "s|^network: .*$|network: $dir/calibrated.geojson|" "$dir/recorded.yaml" >"$dir/config.yaml" &&
+		printf 'calibration:\n  noise_file: %s\n' "$dir/calibrated.noise.json" >>"$dir/config.yaml" &&
+		"$WORK/plumbline" replay --config "$dir/config.yaml" --source "$readings" \
+			--findings "$dir/findings.json" --no-store --quiet >"$dir/replay.log" 2>&1 &&
+		"$WORK/plumbline" score --truth "$(dirname "$readings")/truth.json" --findings "$dir/findings.json" \
+			--network "$network" --from "$from" --to "$to" --json >"$dir/score.json.part" 2>"$dir/score.log"; then
+		mv "$dir/score.json.part" "$dir/score.json"
+		status=ok
+	else
+		cat "$dir"/*.log >"$dir/failed" 2>/dev/null || true
+		status=FAILED
+	fi
+	echo "bench-detect: $net/realistic-calibrated/$name $status in $(($(date +%s) - t0)) s" >&2
+}
+export -f one_run calibrated_run
 export WORK="$work"
 
 # xargs keeps at most $JOBS runs going; each line is one run's 7 fields.
 tr '\t' '\n' <"$work/runs.tsv" | xargs -d '\n' -n 7 -P "$JOBS" bash -c 'one_run "$@"' _
 
 echo "bench-detect: runs done in $(($(date +%s) - started)) s" >&2
-{ head -2 "$suite"; cat "$work/runs.tsv"; } >"$work/suite.tsv"
+{
+	head -2 "$suite"
+	cat "$work/runs.tsv"
+	if [[ "${BENCH_CALIBRATED:-1}" != 0 ]]; then
+		awk -F '\t' -v OFS='\t' '$2 == "realistic" { $2 = "realistic-calibrated"; print }' "$work/runs.tsv"
+	fi
+} >"$work/suite.tsv"
 "$work/benchdetect" -suite "$work/suite.tsv" -results "$work/res"
 # CPU time of everything this script waited for (bash's times: the
 # second line is the children's user and system time).
