@@ -117,7 +117,6 @@ func TestRecalibrationAdoptsOnlyABetterModel(t *testing.T) {
 	t0 := time.Now()
 	feed(t, svc, truth, cfg, start, 3*24*time.Hour, 11)
 	t.Logf("fed 3 days in %s", time.Since(t0))
-	time.Sleep(300 * time.Millisecond) // the store write follows Accept
 
 	first := svc.pipe
 	ctx, cancel := context.WithCancel(context.Background())
