@@ -146,6 +146,22 @@ func TestCalibrateRecoversAgedPipes(t *testing.T) {
 	if pressures == 0 {
 		t.Errorf("noise file lists no logger in m: %+v", tab)
 	}
+	// run and replay take both: the calibrated network as the
+	// configuration's network, the scatter as its calibration.noise_file.
+	yml, err := os.ReadFile(filepath.Join(dir, "demo-town.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cal := strings.Replace(string(yml), "network: demo-town.geojson", "network: calibrated.geojson", 1) +
+		"calibration:\n  noise_file: calibrated.noise.json\n"
+	if err := os.WriteFile(filepath.Join(dir, "calibrated.yaml"), []byte(cal), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var rout, rerr bytes.Buffer
+	if code := dispatch(context.Background(), []string{"replay", "--config", filepath.Join(dir, "calibrated.yaml"), "--source", readings,
+		"--findings", filepath.Join(dir, "found.json"), "--no-store", "--quiet"}, &rout, &rerr); code != 0 || strings.Contains(rerr.String(), "warning") {
+		t.Errorf("replay with the calibrated network and noise file: exit %d: %s", code, rerr.String())
+	}
 	if !strings.Contains(out.String(), "RMSE") && !strings.Contains(strings.ToLower(out.String()), "rmse") {
 		t.Errorf("the text report names no RMSE:\n%s", out.String())
 	}
