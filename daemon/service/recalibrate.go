@@ -10,6 +10,7 @@ import (
 
 	"plumbline/daemon/pipeline"
 	"plumbline/ingest/align"
+	"plumbline/ingest/filestore"
 	"plumbline/ingest/source"
 	"plumbline/ingest/store"
 	"plumbline/model/calib"
@@ -280,7 +281,14 @@ func (s *Service) windowSnapshots(ctx context.Context, from, to time.Time) ([]te
 	for i, sn := range c.Sensors {
 		ids[i] = sn.ID
 	}
-	if err := src.Read(ctx, from, to, ids, func(r telemetry.Reading) error { al.Add(r); return nil }); err != nil {
+	err = src.Read(ctx, from, to, ids, func(r telemetry.Reading) error { al.Add(r); return nil })
+	var le *filestore.LineError
+	if err != nil && ctx.Err() == nil && errors.As(err, &le) {
+		// Unreadable store lines were skipped; the rest is good.
+		s.log.Warn().Err(err).Msg("recalibration: some stored lines unreadable; fitted without them")
+		err = nil
+	}
+	if err != nil {
 		return nil, fmt.Errorf("recalibration: reading %s to %s: %w", from.Format(time.RFC3339), to.Format(time.RFC3339), err)
 	}
 	al.Flush(to)
