@@ -29,6 +29,9 @@ type replayResult struct {
 	Steps    int               `json:"steps"`
 	Findings []finding.Finding `json:"findings"`
 	Seconds  float64           `json:"seconds"`
+	// Warnings are data problems the run went past (bad lines, readings
+	// out of time): printed on stderr even with --quiet.
+	Warnings []string `json:"warnings,omitempty"`
 }
 
 // replayOptions are the shared flags of replay and report.
@@ -89,6 +92,9 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	res, err := replay(ctx, o, progress, onStep)
 	if err != nil {
 		return err
+	}
+	for _, w := range res.Warnings {
+		fmt.Fprintln(stderr, "warning:", w)
 	}
 	if rb != nil {
 		if _, _, err := writeReport(rb, res, *reportOut); err != nil {
@@ -173,7 +179,7 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	}
 	res := &replayResult{Run: o.run, From: from, To: to}
 	pr := newProgress(progress, from, to)
-	popt := pipeline.Options{Config: cfg, Run: o.run, Store: sink, Start: from}
+	popt := pipeline.Options{Config: cfg, Run: o.run, Store: sink, Start: from, Context: ctx}
 	popt.OnStep = onStep
 	p, err := pipeline.New(popt)
 	if err != nil {
@@ -191,7 +197,7 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 		}
 	}
 	start := time.Now()
-	var first, last time.Time
+	var first time.Time
 	ids := make([]string, len(cfg.Sensors))
 	for i, s := range cfg.Sensors {
 		ids[i] = s.ID
@@ -200,7 +206,6 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 		if first.IsZero() {
 			first = r.Time
 		}
-		last = r.Time
 		res.Readings++
 		pr.at(r.Time, res.Readings)
 		return p.Add(r)
@@ -217,7 +222,7 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	}
 	end := to
 	if o.to == "" {
-		end = last.Add(cfg.Step)
+		end = p.Latest().Add(cfg.Step)
 	}
 	if err := p.Flush(end); err != nil {
 		return nil, err
@@ -232,8 +237,14 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	res.Steps = p.Steps()
 	res.Findings = p.Findings()
 	res.Seconds = time.Since(start).Seconds()
-	if fileErr != nil && progress != nil {
-		fmt.Fprintf(progress, "warning: %v\n", fileErr)
+	if fileErr != nil {
+		res.Warnings = append(res.Warnings, fileErr.Error())
+	}
+	if n, ex := p.Jumped(); n > 0 {
+		res.Warnings = append(res.Warnings, fmt.Sprintf("%d readings lie more than %v after the readings before them and were left out (first: %s)", n, 31*24*time.Hour, ex))
+	}
+	if res.Readings == 0 {
+		return nil, fmt.Errorf("%s: no readings of the configured sensors in the period", o.src)
 	}
 	return res, nil
 }

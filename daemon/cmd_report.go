@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"os"
 
 	"plumbline/daemon/config"
 	"plumbline/daemon/report"
@@ -62,6 +63,9 @@ func replayReport(ctx context.Context, o replayOptions, progress io.Writer, out 
 	res, err := replay(ctx, o, progress, func(s telemetry.Snapshot, r *detect.StepResult) error { return b.Add(s, r) })
 	if err != nil {
 		return report.Files{}, nil, err
+	}
+	for _, w := range res.Warnings {
+		fmt.Fprintln(os.Stderr, "warning:", w)
 	}
 	files, sum, err := writeReport(b, res, out)
 	return files, sum, err

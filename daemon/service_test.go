@@ -277,6 +277,11 @@ func TestServiceEndToEnd(t *testing.T) {
 		db.Bucket, start.Format(time.RFC3339))); n == 0 {
 		t.Error("no finding point in InfluxDB")
 	}
+	// The alert's life is in the store too: measurement alert, its state over time.
+	if n := count(fmt.Sprintf(`from(bucket: %q) |> range(start: %s) |> filter(fn: (r) => r._measurement == "alert" and r._field == "state") |> group() |> count()`,
+		db.Bucket, start.Format(time.RFC3339))); n == 0 {
+		t.Error("no alert point in InfluxDB")
+	}
 
 	c2, _ := config.LoadFile(path)
 	after, err := service.New(c2, service.Options{Logger: zerolog.New(io.Discard)})

@@ -10,6 +10,7 @@
 package pipeline
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -50,6 +51,13 @@ type Options struct {
 	// Detector overrides detector settings (zones and sensors come from
 	// Config).
 	Detector detect.Config
+	// MaxGap is the furthest a reading may lie after the latest one seen
+	// (default 31 days). One reading stamped decades ahead would otherwise
+	// make the aligner close every step up to it.
+	MaxGap time.Duration
+	// Context, when set, stops the pipeline: steps after it is done are
+	// not processed and Add returns its error.
+	Context context.Context
 }
 
 // Pipeline aligns readings, detects, and stores results.
@@ -61,6 +69,11 @@ type Pipeline struct {
 	err     error
 	steps   int
 	buf     []lineproto.Point
+	latest  time.Time
+	// jumped counts readings left out for lying beyond MaxGap; jumpedEx
+	// describes the first.
+	jumped   int
+	jumpedEx string
 }
 
 // DetectorConfig maps a service configuration onto the detector's.
@@ -87,6 +100,12 @@ func New(o Options) (*Pipeline, error) {
 	}
 	if o.Lateness == 0 {
 		o.Lateness = c.Step
+	}
+	if o.MaxGap <= 0 {
+		o.MaxGap = 31 * 24 * time.Hour
+	}
+	if o.Context == nil {
+		o.Context = context.Background()
 	}
 	det, err := detect.New(DetectorConfig(c, o.Detector))
 	if err != nil {
@@ -121,9 +140,26 @@ func (p *Pipeline) Add(r telemetry.Reading) error {
 	if p.err != nil {
 		return p.err
 	}
+	if !p.latest.IsZero() && r.Time.Sub(p.latest) > p.opt.MaxGap {
+		if p.jumped == 0 {
+			p.jumpedEx = fmt.Sprintf("sensor %s at %s, after readings up to %s", r.Sensor, r.Time.Format(time.RFC3339), p.latest.Format(time.RFC3339))
+		}
+		p.jumped++
+		return nil
+	}
+	if r.Time.After(p.latest) {
+		p.latest = r.Time
+	}
 	p.aligner.Add(r)
 	return p.err
 }
+
+// Latest returns the time of the latest reading taken in.
+func (p *Pipeline) Latest() time.Time { return p.latest }
+
+// Jumped reports the readings left out for lying more than MaxGap after
+// the latest reading before them, with a description of the first.
+func (p *Pipeline) Jumped() (int, string) { return p.jumped, p.jumpedEx }
 
 // Advance tells the pipeline that no reading older than t will come,
 // closing the steps before it (a clock for quiet periods).
@@ -150,6 +186,10 @@ func (p *Pipeline) Findings() []finding.Finding { return p.det.Findings() }
 
 func (p *Pipeline) step(snap telemetry.Snapshot) {
 	if p.err != nil {
+		return
+	}
+	if err := p.opt.Context.Err(); err != nil {
+		p.err = err
 		return
 	}
 	res, err := p.det.Step(snap)

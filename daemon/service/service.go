@@ -113,6 +113,10 @@ type Service struct {
 	lastDecision *Decision
 	recalMu      sync.Mutex // one recalibration at a time
 
+	// alertSeen is the Updated time of each alert last written to the
+	// store's `alert` measurement (s.mu held).
+	alertSeen map[string]time.Time
+
 	ready     chan struct{}
 	readyOnce sync.Once
 	metrics   metrics
@@ -319,6 +323,7 @@ func (s *Service) onStep(snap telemetry.Snapshot, res *detect.StepResult) error 
 				s.log.Error().Err(err).Str("kind", string(f.Kind)).Str("zone", f.Zone).Msg("alert not updated")
 			}
 		}
+		s.storeAlerts()
 	}
 	// A raised finding is saved at once, so that a crash right after the
 	// alert does not make the restarted detector find the same event anew.
@@ -330,6 +335,36 @@ func (s *Service) onStep(snap telemetry.Snapshot, res *detect.StepResult) error 
 	}
 	s.stepTime = res.Elapsed
 	return nil
+}
+
+// storeAlerts writes an `alert` point for every alert that changed since
+// it was last written: its state, severity and size over time, beside the
+// findings (s.mu held).
+func (s *Service) storeAlerts() {
+	as, err := s.alerts.Alerts(true)
+	if err != nil {
+		return
+	}
+	if s.alertSeen == nil {
+		s.alertSeen = map[string]time.Time{}
+	}
+	var pts []lineproto.Point
+	for _, a := range as {
+		if seen, ok := s.alertSeen[a.ID]; ok && !a.Updated.After(seen) {
+			continue
+		}
+		s.alertSeen[a.ID] = a.Updated
+		pts = append(pts, lineproto.Stamp(lineproto.MeasurementAlert, a.Updated, []lineproto.Field{
+			{Key: "state", Value: string(a.State)}, {Key: "severity", Value: string(a.Severity)},
+			{Key: "size_lps", Value: a.SizeLPS}, {Key: "open_fraction", Value: a.OpenFrac},
+			{Key: "best", Value: a.Best()}, {Key: "level", Value: int64(a.Level)},
+		}, "id", a.ID, "zone", a.Zone, "kind", string(a.Kind)))
+	}
+	if len(pts) > 0 {
+		if err := s.sink.Add(pts...); err != nil {
+			s.log.Error().Err(err).Msg("alert points not stored")
+		}
+	}
 }
 
 // saveState writes the detector's state atomically: a temporary file,

@@ -326,36 +326,36 @@ func (rd *reader) flush(before time.Time, fn func(telemetry.Reading) error, fina
 	return nil
 }
 
-// csv parses a CSV readings file.
+// csv parses a CSV readings file one line at a time: a field quoted
+// across a line break is a bad line, not a licence to swallow the lines
+// after it (a stray quote in one reading must cost that reading only).
 func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, telemetry.Reading, string) error) error {
-	lc := &lineCounter{r: br}
-	cr := csv.NewReader(lc)
-	cr.Comment = '#'
-	cr.FieldsPerRecord = -1
-	cr.ReuseRecord = true
-	cr.TrimLeadingSpace = true
+	sc := bufio.NewScanner(br)
+	sc.Buffer(make([]byte, 64*1024), 1<<20)
 	col := map[string]int{}
 	headerLine := 0
-	for {
+	line := 0
+	var lr strings.Reader
+	for sc.Scan() {
+		line++
+		rd.stats.Lines = line
+		text := strings.TrimRight(sc.Text(), "\r")
+		if t := strings.TrimSpace(text); t == "" || strings.HasPrefix(t, "#") {
+			continue
+		}
+		lr.Reset(text)
+		cr := csv.NewReader(&lr)
+		cr.FieldsPerRecord = -1
+		cr.TrimLeadingSpace = true
 		rec, err := cr.Read()
-		if err == io.EOF {
-			if headerLine == 0 {
-				return errStop{fmt.Errorf("%s: no CSV header (want time,sensor,value,unit)", rd.name)}
+		if err == nil {
+			if _, err2 := cr.Read(); err2 != io.EOF {
+				err = errors.New("a quoted field runs past the end of the line")
 			}
-			rd.stats.Lines = lc.lines()
-			return nil
 		}
-		line := 0
-		var pe *csv.ParseError
-		if errors.As(err, &pe) {
-			line = pe.Line
-		} else if err == nil && len(rec) > 0 {
-			line, _ = cr.FieldPos(0)
-		}
-		rd.stats.Lines = lc.lines()
 		if headerLine == 0 {
 			if err != nil {
-				return errStop{fmt.Errorf("%s:%d: header: %w", rd.name, line, err)}
+				return errStop{fmt.Errorf("%s:%d: header: %w", rd.name, line, unwrapCSV(err))}
 			}
 			if err := parseHeader(rec, col); err != nil {
 				return errStop{fmt.Errorf("%s:%d: header: %w", rd.name, line, err)}
@@ -381,6 +381,13 @@ func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, tele
 			return err
 		}
 	}
+	if err := sc.Err(); err != nil {
+		return errStop{fmt.Errorf("%s:%d: %w", rd.name, line+1, err)}
+	}
+	if headerLine == 0 {
+		return errStop{fmt.Errorf("%s: no CSV header (want time,sensor,value,unit)", rd.name)}
+	}
+	return nil
 }
 
 // lineCounter counts the lines passing through it.
