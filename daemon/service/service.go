@@ -12,9 +12,13 @@
 //     accepted are already durable in the store or its spool);
 //  2. the step in hand is finished and the detector state saved;
 //  3. the store writer drains its spool within the shutdown deadline;
-//  4. alerts stop delivering and their store closes;
-//  5. the HTTP server shuts down;
+//  4. the HTTP server shuts down;
+//  5. alerts stop delivering and their store closes;
 //  6. the embedded broker stops.
+//
+// A component that fails on its own (the HTTP listener, the store writer,
+// alert delivery, ingest) stops the whole service the same way, and Run
+// returns its error.
 //
 // Nothing consumes telemetry before the configuration and model have
 // loaded: a ready channel is closed once everything listens.
@@ -436,6 +440,13 @@ func (s *Service) Run(ctx context.Context) error {
 	}
 	ln, err := net.Listen("tcp", listen)
 	if err != nil {
+		if s.alertPub != nil {
+			s.alertPub.Disconnect(0)
+		}
+		if s.alerts != nil {
+			s.alerts.Close()
+		}
+		s.closeStore()
 		s.stopBroker()
 		return fmt.Errorf("http: %w", err)
 	}
@@ -451,29 +462,42 @@ func (s *Service) Run(ctx context.Context) error {
 	s.httpSrv = &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second}
 	s.log.Info().Str("address", ln.Addr().String()).Msg("http listening")
 
-	// Components run in three groups so that they stop in order.
+	// Components run in groups so that they stop in order; any of them
+	// failing on its own stops the service.
+	ctx, failed := context.WithCancelCause(ctx)
+	defer failed(nil)
+	guard := func(name string, run func() error) func() error {
+		return func() error {
+			err := run()
+			if err != nil && !errors.Is(err, context.Canceled) {
+				s.log.Error().Err(err).Str("component", name).Msg("component stopped; stopping the service")
+				failed(fmt.Errorf("%s: %w", name, err))
+			}
+			return err
+		}
+	}
 	ingestCtx, stopIngest := context.WithCancel(context.WithoutCancel(ctx))
 	backCtx, stopBack := context.WithCancel(context.WithoutCancel(ctx))
 	var ingestG, backG errgroup.Group
-	ingestG.Go(func() error { return ing.Run(ingestCtx) })
+	ingestG.Go(guard("mqtt", func() error { return ing.Run(ingestCtx) }))
 	if !s.opt.NoWallClock {
 		ingestG.Go(func() error { s.clock(ingestCtx); return nil })
 	}
 	if s.writer != nil {
-		backG.Go(func() error { return s.writer.Run(backCtx) })
+		backG.Go(guard("store", func() error { return s.writer.Run(backCtx) }))
 	}
 	if s.alerts != nil {
-		backG.Go(func() error { return s.alerts.Run(backCtx) })
+		backG.Go(guard("alerts", func() error { return s.alerts.Run(backCtx) }))
 	}
 	if every := s.recalEvery(); every > 0 {
 		backG.Go(func() error { s.recalibrateLoop(backCtx, every); return nil })
 	}
-	backG.Go(func() error {
+	backG.Go(guard("http", func() error {
 		if err := s.httpSrv.Serve(ln); !errors.Is(err, http.ErrServerClosed) {
 			return err
 		}
 		return nil
-	})
+	}))
 	s.readyOnce.Do(func() { close(s.ready) })
 
 	<-ctx.Done()
@@ -511,6 +535,9 @@ func (s *Service) Run(ctx context.Context) error {
 	// 6. the embedded broker.
 	s.stopBroker()
 	s.log.Info().Msg("stopped")
+	if cause := context.Cause(ctx); cause != nil && !errors.Is(cause, context.Canceled) {
+		errs = append(errs, cause)
+	}
 	return errors.Join(errs...)
 }
 

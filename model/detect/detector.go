@@ -691,7 +691,9 @@ func (d *Detector) localHour(zi int, t time.Time) int {
 	return t.In(loc).Hour()
 }
 
-// inNight reports whether t lies in the zone's night window.
+// inNight reports whether t lies in the zone's night window, read on the
+// zone's wall clock (so a daylight-saving change leaves "02:00-04:00" at
+// 02:00-04:00), and when that night's window began.
 func (d *Detector) inNight(zi int, t time.Time) (bool, time.Time) {
 	z := d.zones[zi].z
 	loc := time.UTC
@@ -700,16 +702,18 @@ func (d *Detector) inNight(zi int, t time.Time) (bool, time.Time) {
 	}
 	lt := t.In(loc)
 	y, m, dd := lt.Date()
-	mid := time.Date(y, m, dd, 0, 0, 0, 0, loc)
-	off := lt.Sub(mid)
+	off := time.Duration(lt.Hour())*time.Hour + time.Duration(lt.Minute())*time.Minute + time.Duration(lt.Second())*time.Second
+	at := func(day int, clock time.Duration) time.Time {
+		return time.Date(y, m, dd+day, 0, 0, 0, 0, loc).Add(clock)
+	}
 	if z.NightEnd > z.NightStart {
-		return off >= z.NightStart && off < z.NightEnd, mid.Add(z.NightStart)
+		return off >= z.NightStart && off < z.NightEnd, at(0, z.NightStart)
 	}
 	if off >= z.NightStart {
-		return true, mid.Add(z.NightStart)
+		return true, at(0, z.NightStart)
 	}
 	if off < z.NightEnd {
-		return true, mid.Add(-24 * time.Hour).Add(z.NightStart)
+		return true, at(-1, z.NightStart)
 	}
 	return false, time.Time{}
 }
