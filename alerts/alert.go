@@ -78,12 +78,17 @@ func (a *Alert) Best() string {
 type Locator func(id string) (lon, lat float64, ok bool)
 
 // sameEvent reports whether finding f belongs to alert a: same zone and
-// kind, and a common id among both top-k candidate lists, or best
-// candidates within maxDist metres (when loc is given). A finding or alert
-// without candidates (a zone-wide event) matches any of its zone and kind.
+// kind, and the same estimated onset (the detector revising one finding's
+// location as evidence grows), or a common id among both top-k candidate
+// lists, or best candidates within maxDist metres (when loc is given). A
+// finding or alert without candidates (a zone-wide event) matches any of
+// its zone and kind.
 func sameEvent(a *Alert, f finding.Finding, top int, maxDist float64, loc Locator) bool {
 	if a.Zone != f.Zone || a.Kind != f.Kind {
 		return false
+	}
+	if !f.Onset.IsZero() && f.Onset.Equal(a.Onset) {
+		return true
 	}
 	if len(a.Candidates) == 0 || len(f.Candidates) == 0 {
 		return true

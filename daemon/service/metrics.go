@@ -92,8 +92,13 @@ func (s *Service) ReadyState() (bool, []string) {
 	default:
 		why = append(why, "starting")
 	}
-	if s.ingest != nil && !s.ingest.Status().Connected {
-		why = append(why, "MQTT broker not connected")
+	if s.ingest != nil {
+		switch st := s.ingest.Status(); {
+		case !st.Connected:
+			why = append(why, "MQTT broker not connected")
+		case !st.Subscribed:
+			why = append(why, "MQTT subscriptions not granted yet")
+		}
 	}
 	if s.writer != nil {
 		if st := s.writer.Stats(); st.LastError != "" && time.Since(st.LastErrorTime) < 30*time.Second {

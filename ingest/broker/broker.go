@@ -45,9 +45,16 @@ func Start(cfg Config, log zerolog.Logger) (*Broker, error) {
 		return nil, fmt.Errorf("embedded broker: address %q is not on loopback (127.0.0.1 or ::1)", addr)
 	}
 	log = log.With().Str("component", "broker").Logger()
+	// Raise the per-client limits above the ingest client's queue (16384):
+	// at mochi's defaults (8192) a backlog makes it drop QoS 1 messages
+	// for good (mochi-mqtt/server issue 340).
+	caps := mqtt.NewDefaultServerCapabilities()
+	caps.MaximumInflight = 65535
+	caps.MaximumClientWritesPending = 65536
 	srv := mqtt.New(&mqtt.Options{
 		Logger:       slog.New(&slogBridge{log: log}),
 		InlineClient: false,
+		Capabilities: caps,
 	})
 	if err := srv.AddHook(new(loopbackOnly), nil); err != nil {
 		return nil, fmt.Errorf("embedded broker: auth hook: %w", err)
