@@ -323,7 +323,10 @@ type LineError struct {
 	Err  error
 }
 
+// Error names the file and line of the bad point.
 func (e *LineError) Error() string { return fmt.Sprintf("%s:%d: %v", e.File, e.Line, e.Err) }
+
+// Unwrap returns the parse error.
 func (e *LineError) Unwrap() error { return e.Err }
 
 // ReadPoints calls fn for every point of measurement m with time in

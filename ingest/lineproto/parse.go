@@ -17,6 +17,7 @@ type SyntaxError struct {
 	Msg    string
 }
 
+// Error names the column of the problem.
 func (e *SyntaxError) Error() string { return fmt.Sprintf("column %d: %s", e.Column, e.Msg) }
 
 // Unwrap makes errors.Is(err, ErrSyntax) hold.

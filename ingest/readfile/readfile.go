@@ -78,6 +78,7 @@ type LineError struct {
 	Err  error
 }
 
+// Error names the file and line of the bad reading.
 func (e *LineError) Error() string { return fmt.Sprintf("%s:%d: %v", e.File, e.Line, e.Err) }
 
 // Unwrap returns the cause.
@@ -91,6 +92,7 @@ type FileError struct {
 	Lines []*LineError
 }
 
+// Error lists the counts and the first bad lines.
 func (e *FileError) Error() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "%s: %d bad lines skipped, %d readings read", e.File, e.Stats.Bad, e.Stats.Readings)

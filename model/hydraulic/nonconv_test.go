@@ -148,7 +148,7 @@ func TestRunawayJunctionsNamed(t *testing.T) {
 	// 5 L/s: no steady state exists; its head runs away and is named.
 	net := newBuilder().reservoir("R", 50).junction("J1", 0, 1).junction("J2", 0, 5).
 		pipe("P1", "R", "J1", 100, 150, 100).
-		link(valve("FCV", network.FlowControl, 2), "J1", "J2").net()
+		link(valve("V-flow", network.FlowControl, 2), "J1", "J2").net()
 	s, err := NewSolver(net, Options{})
 	if err != nil {
 		t.Fatal(err)

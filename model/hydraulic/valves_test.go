@@ -128,7 +128,7 @@ func TestFlowControlValve(t *testing.T) {
 	}
 	_, sol := mustSolve(t, mk(8), nil)
 	stateOf(t, sol, 1, Active)
-	near(t, "FCV flow", sol.Flow[1], 8, 1e-6)
+	near(t, "flow-control valve flow", sol.Flow[1], 8, 1e-6)
 	near(t, "A head", sol.Head[1], 100-hw(9, 1000, 200, 110)-gMin*9, 1e-5)
 	near(t, "B head", sol.Head[2], 50+hw(5, 500, 200, 110)+gMin*5, 1e-5)
 	// Open: the setting cannot be reached, the valve is fully open and
@@ -138,23 +138,23 @@ func TestFlowControlValve(t *testing.T) {
 	q := bisect(func(q float64) float64 {
 		return hw(q+1, 1000, 200, 110) + gMin*(q+1) + gMin*q + hw(q-3, 500, 200, 110) + gMin*(q-3) - 50
 	}, 3, 2000)
-	near(t, "open FCV flow", sol.Flow[1], q, 1e-4)
+	near(t, "open flow-control valve flow", sol.Flow[1], q, 1e-4)
 }
 
 func TestThrottleAndIsolatingValves(t *testing.T) {
-	// TCV: minor loss with K = setting: h = K v²/2g.
+	// Throttle valve: minor loss with K = setting: h = K v²/2g.
 	net := newBuilder().reservoir("R", 30).junction("J", 0, 12).
 		link(valve("V", network.Throttle, 8), "R", "J").net()
 	_, sol := mustSolve(t, net, nil)
 	v := 0.012 / (math.Pi * 0.075 * 0.075)
-	near(t, "TCV head", sol.Head[1], 30-8*v*v/(2*Gravity)-gMin*12, 1e-6)
+	near(t, "throttle valve head", sol.Head[1], 30-8*v*v/(2*Gravity)-gMin*12, 1e-6)
 	// A new setting through the conditions.
 	s, _ := NewSolver(net, Options{})
 	sol, err := s.Solve(&Conditions{ValveSetting: []float64{20}}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	near(t, "TCV head at K=20", sol.Head[1], 30-20*v*v/(2*Gravity)-gMin*12, 1e-6)
+	near(t, "throttle valve head at K=20", sol.Head[1], 30-20*v*v/(2*Gravity)-gMin*12, 1e-6)
 	// Isolating valve closed: all flow takes the other path.
 	net = newBuilder().reservoir("R", 50).junction("A", 0, 0).junction("J", 0, 10).
 		pipe("P1", "R", "A", 100, 150, 100).
