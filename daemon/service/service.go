@@ -189,7 +189,67 @@ func New(cfg *config.Config, opt Options) (*Service, error) {
 		return nil, err
 	}
 	s.view = s.initialView()
+	if restored {
+		if err := s.catchUp(); err != nil {
+			s.log.Warn().Err(err).Msg("catch-up from the store incomplete")
+		}
+	}
 	return s, nil
+}
+
+// catchUp feeds the pipeline the stored readings newer than the restored
+// detector state: readings made durable and acknowledged after the last
+// state save (a crash between the two) reach the detector after all.
+func (s *Service) catchUp() error {
+	last := s.pipe.Detector().LastStep()
+	if last.IsZero() {
+		return nil
+	}
+	from := last.Add(s.cfg.Step)
+	var src interface {
+		Read(ctx context.Context, from, to time.Time, sensors []string, fn func(telemetry.Reading) error) error
+	}
+	if s.fileSt != nil {
+		src = s.fileSt
+	} else {
+		sc, err := storeConfig(s.cfg)
+		if err != nil {
+			return err
+		}
+		is, err := store.NewSource(sc)
+		if err != nil {
+			return err
+		}
+		defer is.Close()
+		src = is
+	}
+	ids := make([]string, len(s.cfg.Sensors))
+	for i, sen := range s.cfg.Sensors {
+		ids[i] = sen.ID
+	}
+	n := 0
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
+	defer cancel()
+	err := src.Read(ctx, from, time.Now().Add(time.Hour), ids, func(r telemetry.Reading) error {
+		n++
+		return s.pipe.Add(r)
+	})
+	s.log.Info().Time("from", from).Int("readings", n).Msg("caught up from the store")
+	return err
+}
+
+// storeConfig is the InfluxDB client configuration of c, with the token
+// read from its file.
+func storeConfig(c *config.Config) (store.Config, error) {
+	sc := store.Config{URL: c.Store.URL, Org: c.Store.Org, Bucket: c.Store.Bucket, CreateDatabase: true}
+	if c.Store.TokenFile != "" {
+		b, err := os.ReadFile(c.Store.TokenFile)
+		if err != nil {
+			return sc, fmt.Errorf("store token: %w", err)
+		}
+		sc.Token = string(trimSpace(b))
+	}
+	return sc, nil
 }
 
 func (s *Service) openStore() error {
@@ -570,3 +630,10 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 
 // Logger returns the service's logger.
 func (s *Service) Logger() zerolog.Logger { return s.log }
+
+// LastStep returns the start of the last model step the detector processed.
+func (s *Service) LastStep() time.Time {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.pipe.Detector().LastStep()
+}

@@ -85,7 +85,9 @@ type meter struct {
 
 // state is everything Step changes; it is what State saves.
 type state struct {
-	Steps     int
+	Steps int
+	// Last is the start of the last step processed.
+	Last      time.Time
 	Hour      time.Time
 	SensorAcc []acc
 	ZoneAcc   []acc
@@ -412,6 +414,11 @@ func (d *Detector) Findings() []finding.Finding {
 	return append([]finding.Finding(nil), d.st.Findings...)
 }
 
+// LastStep returns the start of the last step processed (zero before the
+// first): after a restart, readings from the step after it on are the
+// ones the detector has not seen.
+func (d *Detector) LastStep() time.Time { return d.st.Last }
+
 // Active returns the findings whose evidence still holds: leaks not yet
 // seen to be mended, blockages, and sensor faults whose sensor is still
 // left out of the evidence.
@@ -639,6 +646,7 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 		}
 	}
 	d.st.Steps++
+	d.st.Last = t
 	res.Findings, d.raised = d.raised, nil
 	res.Updated, d.updated = d.updated, nil
 	res.Elapsed = time.Since(began)
