@@ -3,7 +3,6 @@ package pipeline
 import (
 	"context"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"syscall"
@@ -163,8 +162,11 @@ func benchTown5k(b *testing.B) *config.Config {
 	if err != nil {
 		b.Fatal(err)
 	}
-	net := benchDMATown(b, raw)
-	sensors := benchSensors(net, 19)
+	net, err := netgen.CloseDistricts(raw)
+	if err != nil {
+		b.Fatal(err)
+	}
+	sensors := netgen.DistrictSensors(net, 19)
 	if len(sensors) != 60 {
 		b.Fatalf("town-5k: %d sensors placed, want 60", len(sensors))
 	}
@@ -176,148 +178,3 @@ func benchTown5k(b *testing.B) *config.Config {
 	}
 	return cfg
 }
-
-// benchDMATown shuts every pipe between two zones of a clone of net; pockets
-// of junctions cut off from every source join the zone they are piped to.
-func benchDMATown(b *testing.B, net *network.Network) *network.Network {
-	net = net.Clone()
-	orig := make([]network.Status, len(net.Links))
-	for k := range net.Links {
-		orig[k] = net.Links[k].Status
-	}
-	junction := func(i int) bool { return net.Nodes[i].Kind == network.Junction }
-	for round := 0; round <= 50; round++ {
-		for k := range net.Links {
-			l := &net.Links[k]
-			l.Status = orig[k]
-			if junction(l.From) && junction(l.To) && net.Nodes[l.From].Zone != net.Nodes[l.To].Zone {
-				l.Status = network.Closed
-			}
-		}
-		comp := benchComponents(net)
-		fed := map[int]bool{}
-		for i := range net.Nodes {
-			if net.Nodes[i].IsFixedHead() {
-				fed[comp[i]] = true
-			}
-		}
-		moved, cut := map[int]bool{}, false
-		for k := range net.Links {
-			l := &net.Links[k]
-			if l.Status != network.Closed || orig[k] == network.Closed {
-				continue
-			}
-			a, c := l.From, l.To
-			if fed[comp[a]] {
-				a, c = c, a
-			}
-			if fed[comp[a]] || !fed[comp[c]] {
-				continue
-			}
-			cut = true
-			if moved[comp[a]] {
-				continue
-			}
-			moved[comp[a]] = true
-			for i := range net.Nodes {
-				if comp[i] == comp[a] {
-					net.Nodes[i].Zone = net.Nodes[c].Zone
-				}
-			}
-		}
-		for i := range net.Nodes {
-			if !fed[comp[i]] {
-				cut = true
-			}
-		}
-		if !cut {
-			return net
-		}
-	}
-	b.Fatal("benchDMATown: pockets of junctions never joined a fed zone")
-	return nil
-}
-
-func benchComponents(net *network.Network) []int {
-	parent := make([]int, len(net.Nodes))
-	for i := range parent {
-		parent[i] = i
-	}
-	find := func(i int) int {
-		for parent[i] != i {
-			parent[i] = parent[parent[i]]
-			i = parent[i]
-		}
-		return i
-	}
-	for k := range net.Links {
-		if l := &net.Links[k]; l.Status != network.Closed {
-			parent[find(l.From)] = find(l.To)
-		}
-	}
-	out := make([]int, len(parent))
-	for i := range out {
-		out[i] = find(i)
-	}
-	return out
-}
-
-// benchSensors puts a flow meter on every open reservoir main and
-// perZone loggers in each zone: the highest ground first, then by
-// farthest-point sampling (common practice, not from a source), with
-// netgen's accuracies (loggers ±0.02 bar, meters 1 % of base demand).
-func benchSensors(net *network.Network, perZone int) []telemetry.Sensor {
-	var out []telemetry.Sensor
-	xy := func(i int) (float64, float64) {
-		c := net.Nodes[i].Coord
-		return c.Lon * math.Cos(c.Lat*math.Pi/180), c.Lat
-	}
-	for _, z := range net.Zones() {
-		base := 0.0
-		var js []int
-		for i := range net.Nodes {
-			if n := &net.Nodes[i]; n.Kind == network.Junction && n.Zone == z {
-				base += n.Demand
-				js = append(js, i)
-			}
-		}
-		for k := range net.Links {
-			l := &net.Links[k]
-			if l.Status != network.Closed && net.Nodes[l.From].IsFixedHead() && net.Nodes[l.To].Zone == z && benchJunction(net, l.To) {
-				out = append(out, telemetry.Sensor{ID: fmt.Sprintf("F-in-%s-%d", z, k), Quantity: telemetry.Flow, At: l.ID, Unit: "L/s", Accuracy: math.Max(0.01, 0.01*base), Zone: z})
-			}
-		}
-		if len(js) == 0 {
-			continue
-		}
-		first := js[0]
-		for _, j := range js {
-			if net.Nodes[j].Elevation > net.Nodes[first].Elevation {
-				first = j
-			}
-		}
-		dist := make([]float64, len(js))
-		for i := range dist {
-			dist[i] = math.Inf(1)
-		}
-		picked := []int{first}
-		for len(picked) < min(perZone, len(js)) {
-			px, py := xy(picked[len(picked)-1])
-			best := -1
-			for i, j := range js {
-				x, y := xy(j)
-				dist[i] = math.Min(dist[i], math.Hypot(x-px, y-py))
-				if best < 0 || dist[i] > dist[best] {
-					best = i
-				}
-			}
-			picked = append(picked, js[best])
-		}
-		for i, n := range picked {
-			out = append(out, telemetry.Sensor{ID: fmt.Sprintf("P-%s-%02d", z, i+1), Quantity: telemetry.Pressure, At: net.Nodes[n].ID, Unit: "bar", Accuracy: 0.02, Zone: z})
-		}
-	}
-	return out
-}
-
-func benchJunction(net *network.Network, i int) bool { return net.Nodes[i].Kind == network.Junction }
