@@ -16,6 +16,8 @@
 // Read, ReadFile and Parse decode a network file; Write and WriteFile
 // encode one. The reader takes:
 //
+//   - UTF-8 text, with or without a leading byte order mark (many
+//     desktop GIS tools write one; RFC 8259 §8.1 lets a parser skip it);
 //   - a FeatureCollection whose node features have Point geometry and
 //     link features LineString geometry (WGS84 longitude, latitude; a
 //     third coordinate is ignored), or null geometry;

@@ -2,13 +2,15 @@ package network
 
 import (
 	"bytes"
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
 )
 
-// FuzzRead checks that Parse never panics on any input and that a file
-// it accepts survives a rewrite: Read(Write(n)) equals n, and writing
+// FuzzRead checks that Parse never panics on any input, that a leading
+// byte order mark changes none of its answers, and that a file it
+// accepts survives a rewrite: Read(Write(n)) equals n, and writing
 // that again gives the same bytes. Seeds: the corpus under
 // testdata/fuzz/FuzzRead plus every network file in testdata/network.
 func FuzzRead(f *testing.F) {
@@ -25,6 +27,13 @@ func FuzzRead(f *testing.F) {
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		n, probs := Parse(data, "fuzz.geojson")
+		if !bytes.HasPrefix(data, []byte(utf8BOM)) {
+			// A leading byte order mark changes nothing, lines included.
+			_, bomProbs := Parse(append([]byte(utf8BOM), data...), "fuzz.geojson")
+			if fmt.Sprint(bomProbs) != fmt.Sprint(probs) {
+				t.Fatalf("with a byte order mark:\n got %v\nwant %v", bomProbs, probs)
+			}
+		}
 		if n == nil {
 			if !HasErrors(probs) {
 				t.Fatalf("no network and no error")

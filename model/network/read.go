@@ -49,7 +49,12 @@ func ReadFile(path string) (*Network, error) {
 // Parse decodes and validates a network file held in data and returns
 // the network with every problem found (errors and warnings, in file
 // order). The network is nil if any problem is an Error.
+//
+// A leading UTF-8 byte order mark (EF BB BF), which many desktop GIS
+// tools write, is skipped: RFC 8259 §8.1 lets a parser ignore it. It
+// holds no line break, so the lines of problems are those of the file.
 func Parse(data []byte, name string) (*Network, []Problem) {
+	data = bytes.TrimPrefix(data, []byte(utf8BOM))
 	p := &parser{data: data, file: name}
 	n := p.parse()
 	if HasErrors(p.probs) {
@@ -57,6 +62,9 @@ func Parse(data []byte, name string) (*Network, []Problem) {
 	}
 	return n, p.probs
 }
+
+// utf8BOM is the UTF-8 encoding of the byte order mark U+FEFF.
+const utf8BOM = "\xef\xbb\xbf"
 
 // Property words of the file format, per kind (shared/CONTRACT.md).
 var (

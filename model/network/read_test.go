@@ -535,3 +535,54 @@ func TestPlaceWarnings(t *testing.T) {
 		t.Errorf("got:\n  %s\nwant:\n  %s", strings.Join(got, "\n  "), strings.Join(want, "\n  "))
 	}
 }
+
+// A leading UTF-8 byte order mark (EF BB BF) is skipped, as RFC 8259
+// §8.1 allows a JSON parser to do: the file reads as it does without
+// one, and every problem of a bad file keeps its line.
+func TestByteOrderMark(t *testing.T) {
+	const bom = "\xef\xbb\xbf"
+	path := filepath.Join(testdata, "two-loop.geojson")
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plain := readTestFile(t, "two-loop.geojson")
+	withBOM := append([]byte(bom), data...)
+	n, err := Read(bytes.NewReader(withBOM), "bom.geojson")
+	if err != nil {
+		t.Fatalf("Read with a byte order mark: %v", err)
+	}
+	if d := diffNetworks(plain, n); d != "" {
+		t.Errorf("with a byte order mark the network differs: %s", d)
+	}
+	bomPath := filepath.Join(t.TempDir(), "bom.geojson")
+	if err := os.WriteFile(bomPath, withBOM, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ReadFile(bomPath); err != nil {
+		t.Errorf("ReadFile with a byte order mark: %v", err)
+	}
+
+	files, err := filepath.Glob(filepath.Join(testdata, "*.bad.geojson"))
+	if err != nil || len(files) == 0 {
+		t.Fatalf("no bad corpus: %v", err)
+	}
+	for _, path := range files {
+		data, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		name := filepath.Base(path)
+		_, want := Parse(data, name)
+		_, got := Parse(append([]byte(bom), data...), name)
+		if fmt.Sprint(got) != fmt.Sprint(want) {
+			t.Errorf("%s with a byte order mark:\n got %v\nwant %v", name, got, want)
+		}
+	}
+
+	// Only a leading mark is skipped: one anywhere else is not JSON.
+	_, probs := Parse([]byte("{\"type\": \"FeatureCollection\",\n"+bom+"\"features\": []}"), "mid.geojson")
+	if !HasErrors(probs) || !strings.HasPrefix(probs[0].String(), "mid.geojson:2: not valid JSON") {
+		t.Errorf("a byte order mark inside the file: got %v, want a JSON error on line 2", probs)
+	}
+}
