@@ -14,6 +14,10 @@
 //     tag unit (optional tag quality), nanosecond timestamps. Lines of
 //     other measurements are skipped and counted; # starts a comment.
 //
+// Files are UTF-8; a leading byte order mark (which spreadsheet and
+// desktop tools often write) is skipped, and line numbers are those of
+// the file.
+//
 // The format comes from the extension (.csv; .lp, .line, .influx) or,
 // failing that, from the first line that is not blank or a comment (a CSV
 // header starts with a column name followed by a comma).

@@ -213,6 +213,7 @@ func (e errStop) Error() string { return e.err.Error() }
 
 func (rd *reader) run(ctx context.Context, r io.Reader, format Format, fn func(telemetry.Reading) error) error {
 	br := bufio.NewReaderSize(r, 256<<10)
+	skipBOM(br)
 	if format == Auto {
 		format = sniff(br)
 	}
@@ -234,6 +235,21 @@ func (rd *reader) run(ctx context.Context, r io.Reader, format Format, fn func(t
 		return stop.err
 	}
 	return err
+}
+
+// utf8BOM is the UTF-8 encoding of the byte order mark U+FEFF.
+const utf8BOM = "\xef\xbb\xbf"
+
+// skipBOM drops a byte order mark at the start of the file: spreadsheet
+// and desktop tools often write one, and left in it would hide a first
+// comment, break a quoted CSV header, or rename the first line
+// protocol measurement (so that the reading on it was skipped as
+// another measurement). It holds no line break: line numbers stay those
+// of the file.
+func skipBOM(br *bufio.Reader) {
+	if b, err := br.Peek(len(utf8BOM)); err == nil && string(b) == utf8BOM {
+		_, _ = br.Discard(len(utf8BOM))
+	}
 }
 
 // sniff looks at the first line that is not blank or a comment: a CSV
@@ -428,9 +444,6 @@ var columns = []string{"time", "sensor", "value", "unit", "quality"}
 func parseHeader(rec []string, col map[string]int) error {
 	for i, h := range rec {
 		h = strings.ToLower(strings.TrimSpace(h))
-		if i == 0 {
-			h = strings.TrimPrefix(h, "\ufeff") // a byte order mark
-		}
 		known := false
 		for _, c := range columns {
 			if h == c {

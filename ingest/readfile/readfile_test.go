@@ -223,8 +223,8 @@ func TestSniffAndStop(t *testing.T) {
 }
 
 // fuzzRead parses data in format and checks the invariants every read
-// must keep: no panic, finite values, sensors named, time order, and
-// that the delivered readings, written out again, read back the same.
+// must keep: no panic, the same answer with a leading byte order mark,
+// finite values, sensors named, time order, and that the delivered readings, written out again, read back the same.
 func fuzzRead(t *testing.T, data []byte, format Format) {
 	rd := newReader("fuzz", Options{ReorderWindow: time.Hour, MaxErrors: 5}, nil)
 	var got []telemetry.Reading
@@ -234,6 +234,18 @@ func fuzzRead(t *testing.T, data []byte, format Format) {
 	})
 	if err != nil && format == LineProtocol {
 		t.Fatalf("line protocol reading stopped: %v", err)
+	}
+	if !bytes.HasPrefix(data, []byte(bom)) {
+		// A leading byte order mark changes nothing, line numbers included.
+		rdB := newReader("fuzz", Options{ReorderWindow: time.Hour, MaxErrors: 5}, nil)
+		var gotB []telemetry.Reading
+		errB := rdB.run(context.Background(), bytes.NewReader(append([]byte(bom), data...)), format, func(r telemetry.Reading) error {
+			gotB = append(gotB, r)
+			return nil
+		})
+		if fmt.Sprint(gotB, rdB.stats, rdB.errs, errB) != fmt.Sprint(got, rd.stats, rd.errs, err) {
+			t.Fatalf("with a byte order mark: %v %+v %v %v\nwant %v %+v %v %v", gotB, rdB.stats, rdB.errs, errB, got, rd.stats, rd.errs, err)
+		}
 	}
 	if err != nil {
 		return // a CSV header error stops the read
