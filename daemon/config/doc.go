@@ -7,7 +7,9 @@
 //
 // Load(data, name) is for tests and tools, LoadFile(path) for the
 // service; Parse returns every problem (errors and warnings) and the
-// Config when there is no error. The steps are: decode with
+// Config when there is no error. Files may start with a UTF-8 byte
+// order mark: the YAML decoder and the network reader skip it, lines
+// unchanged. The steps are: decode with
 // go.yaml.in/yaml/v3 and KnownFields(true), so a misspelt key is an
 // error naming its line (sensor entries, decoded one by one, have their
 // keys checked the same way); apply the defaults (the Default*
