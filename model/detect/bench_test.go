@@ -165,11 +165,15 @@ func BenchmarkStep5k(b *testing.B) {
 // the non-linear re-scoring of the shortlist. Target ≤ 5 s.
 //
 // path=residual is what a logger's residual alarm costs
-// (Detector.residualHypothesis): the same signatures, the linear leak
-// and blockage fits, then the non-linear re-scoring of both shortlists,
-// where each shortlisted leak's size and each blockage's open fraction
-// are fitted by golden section (two full solves per leak trial, one per
-// blockage trial).
+// (Detector.physicalHypotheses, as residualHypothesis calls it): the same
+// signatures, the linear leak and blockage fits, then the non-linear
+// re-scoring of both shortlists, each blockage's open fraction fitted
+// (five sampling solves and one check per candidate) and, the balance
+// having moved clearly, each leak at the balance's size (one solve).
+//
+// path=residual-fitted is the same with the balance barely moved (2.5 of
+// its σ): each shortlisted leak's size is fitted too (two sampling solves
+// per candidate, two shared, one check).
 func BenchmarkLocalise100k(b *testing.B) {
 	raw, err := netgen.Town(netgen.Options{Junctions: 100_000, Zones: 1, Seed: 1})
 	if err != nil {
@@ -194,27 +198,30 @@ func BenchmarkLocalise100k(b *testing.B) {
 				b.Fatal(err)
 			}
 			short, _ := rank(d.leakFits(ev.zone, ev.evidence, sg, ev.dI), shortlist)
-			top, _ = rank(d.refineLeaks(ev.evidence, short, ev.dI), d.cfg.Candidates)
+			top, _ = rank(d.refineLeaks(ev.evidence, sg, short, ev.dI), d.cfg.Candidates)
 			n++
 		}
 		report(b, c0, n, top)
 	})
-	b.Run("path=residual", func(b *testing.B) {
-		var top []ranked
-		c0, n := benchCPU(), 0
-		for b.Loop() {
-			sg, err := d.signatures(ev.evidence)
-			if err != nil {
-				b.Fatal(err)
+	residual := func(ev evidence) func(b *testing.B) {
+		return func(b *testing.B) {
+			var top []ranked
+			c0, n := benchCPU(), 0
+			for b.Loop() {
+				hy := d.physicalHypotheses(ev)
+				if len(hy.blocks) == 0 {
+					b.Fatal("no blockage candidates ranked")
+				}
+				top = hy.leaks
+				n++
 			}
-			bTop, _ := rank(d.blockageFits(ev.zone, ev.evidence, sg), shortlist)
-			lTop, _ := rank(d.leakFits(ev.zone, ev.evidence, sg, -1), shortlist)
-			rank(d.refineBlockages(ev.evidence, bTop), d.cfg.Candidates)
-			top, _ = rank(d.refineLeaks(ev.evidence, lTop, -1), d.cfg.Candidates)
-			n++
+			report(b, c0, n, top)
 		}
-		report(b, c0, n, top)
-	})
+	}
+	b.Run("path=residual", residual(ev.evidence))
+	fitted := ev.evidence
+	fitted.wI = 2.5 * 2.5 / (fitted.dI * fitted.dI)
+	b.Run("path=residual-fitted", residual(fitted))
 }
 
 // localiseEvidence is an evidence with the leak it was made from.

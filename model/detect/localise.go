@@ -10,6 +10,8 @@ import (
 	"plumbline/model/finding"
 	"plumbline/model/hydraulic"
 	"plumbline/model/network"
+
+	"gonum.org/v1/gonum/interp"
 )
 
 // evidence is the residual picture of one zone over a window: the mean
@@ -64,6 +66,8 @@ func (d *Detector) gather(zi int, onset time.Time) evidence {
 type signatures struct {
 	sens *hydraulic.Sensitivity
 	ubar []float64
+	cond hydraulic.Conditions // the operating point (refConditions)
+	ref  *hydraulic.Solution  // solved at cond
 }
 
 // refConditions are the boundary conditions of the operating point of
@@ -89,117 +93,244 @@ func (d *Detector) refConditions(ev evidence) hydraulic.Conditions {
 	return c
 }
 
-// fitOpenFraction finds the open fraction of link l whose full
+// responses measures what full solves at the operating point of sg do
+// at the evidence loggers: each call solves the reference conditions with
+// the demand changed by mod (or the resistance factor of one link set)
+// and returns every logger's head change from the reference solution.
+// One scratch demand vector serves every call.
+type responses struct {
+	d       *Detector
+	sg      *signatures
+	ev      evidence
+	demand  []float64
+	factor  []float64
+	link    int
+	solves  int
+}
+
+func (d *Detector) responses(ev evidence, sg *signatures) *responses {
+	return &responses{d: d, sg: sg, ev: ev, demand: make([]float64, len(sg.cond.Demand)), link: -1}
+}
+
+// demandChange solves with the reference demand changed by mod.
+func (r *responses) demandChange(mod func(dem []float64)) ([]float64, error) {
+	copy(r.demand, r.sg.cond.Demand)
+	mod(r.demand)
+	c := r.sg.cond
+	c.Demand = r.demand
+	return r.solve(&c)
+}
+
+// resistance solves with link l's resistance multiplied by factor.
+func (r *responses) resistance(l int, factor float64) ([]float64, error) {
+	if r.factor == nil {
+		r.factor = make([]float64, len(r.d.net.Links))
+		for i := range r.factor {
+			r.factor[i] = 1
+		}
+	}
+	if r.link >= 0 {
+		r.factor[r.link] = 1
+	}
+	r.factor[l], r.link = factor, l
+	c := r.sg.cond
+	c.ResistanceFactor = r.factor
+	return r.solve(&c)
+}
+
+func (r *responses) solve(c *hydraulic.Conditions) ([]float64, error) {
+	r.solves++
+	sol, err := r.d.solver.Solve(c, r.sg.ref)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]float64, len(r.ev.sensors))
+	for k, si := range r.ev.sensors {
+		n := r.d.sens[si].node
+		out[k] = sol.Head[n] - r.sg.ref.Head[n]
+	}
+	return out, nil
+}
+
+// spread is the inflow-matched model's answer to qq L/s of unexplained
+// inflow: the zone's demand scaled up by qq over its total.
+func (r *responses) spread(qq float64) ([]float64, error) {
+	zone := r.d.zones[r.ev.zone]
+	total := 0.0
+	for _, j := range zone.junctions {
+		total += r.sg.cond.Demand[j]
+	}
+	return r.demandChange(func(dem []float64) {
+		if total > 0 {
+			for _, j := range zone.junctions {
+				dem[j] *= 1 + qq/total
+			}
+		}
+	})
+}
+
+// leak is the real network's answer to a leak of qq L/s at junction j.
+func (r *responses) leak(j int, qq float64) ([]float64, error) {
+	return r.demandChange(func(dem []float64) { dem[j] += qq })
+}
+
+// misfit is the weighted sum of squares of the evidence minus a modelled
+// residual change pred (per logger).
+func (ev evidence) misfit(pred func(k int) float64) float64 {
+	e := 0.0
+	for k := range ev.sensors {
+		r := ev.dr[k] - pred(k)
+		e += ev.w[k] * r * r
+	}
+	return e
+}
+
+// quadratic is y(x) = a·x + b·x², per logger, through the origin and two
+// samples (x1, y1) and (x2, y2): the surrogate of a head response in a
+// flow added somewhere, whose curvature comes from the head-loss laws'
+// exponent (close to 2).
+type quadratic struct{ a, b []float64 }
+
+func fitQuadratic(x1 float64, y1 []float64, x2 float64, y2 []float64) quadratic {
+	q := quadratic{a: make([]float64, len(y1)), b: make([]float64, len(y1))}
+	det := x1 * x2 * (x2 - x1)
+	for k := range y1 {
+		q.b[k] = (x1*y2[k] - x2*y1[k]) / det
+		q.a[k] = (y1[k] - q.b[k]*x1*x1) / x1
+	}
+	return q
+}
+
+func (q quadratic) at(k int, x float64) float64 { return q.a[k]*x + q.b[k]*x*x }
+
+// fitOpenFraction finds the open fraction f of link l whose full
 // (non-linear) solve at the average operating point best reproduces the
 // residual changes: the linear signature ranks candidates, but a valve
-// 10% open is far outside the range where it gives the size. Golden-
-// section search over f in (0.01, 1) (Kiefer 1953).
-func (d *Detector) fitOpenFraction(l int, ev evidence) (float64, float64) {
-	c := d.refConditions(ev)
-	base, err := d.solver.Solve(&c, d.prevMat)
+// 10% open is far outside the range where it gives the size. The head
+// response is sampled by full solves at open fractions spread evenly in
+// ln(1/f²) (the log of the resistance factor, over which it is smooth and
+// monotone), interpolated per logger by the monotone piecewise cubic of
+// Fritsch & Carlson (1980; Fritsch & Butland 1984, gonum/interp), the
+// misfit of the interpolant minimised by golden-section search (Kiefer
+// 1953), and the best fraction checked by one more full solve, whose
+// misfit is the one returned.
+func (d *Detector) fitOpenFraction(l int, ev evidence, rs *responses) (float64, float64) {
+	xs := []float64{0}
+	ys := make([][]float64, len(ev.sensors))
+	for k := range ys {
+		ys[k] = []float64{0}
+	}
+	for _, f := range openSamples {
+		dh, err := rs.resistance(l, 1/(f*f))
+		if err != nil {
+			break // e.g. the link cut a part of the network off: fit what solved
+		}
+		xs = append(xs, -2*math.Log(f))
+		for k := range ys {
+			ys[k] = append(ys[k], dh[k])
+		}
+	}
+	if len(xs) < 3 {
+		return math.NaN(), math.Inf(1)
+	}
+	curves := make([]interp.FritschButland, len(ys))
+	for k := range ys {
+		if err := curves[k].Fit(xs, ys[k]); err != nil {
+			return math.NaN(), math.Inf(1)
+		}
+	}
+	xmax := xs[len(xs)-1]
+	x, _ := golden(func(x float64) float64 {
+		return ev.misfit(func(k int) float64 { return curves[k].Predict(x) })
+	}, 0, xmax, 40)
+	f := math.Exp(-x / 2)
+	dh, err := rs.resistance(l, 1/(f*f))
 	if err != nil {
 		return math.NaN(), math.Inf(1)
 	}
-	c.ResistanceFactor = make([]float64, len(d.net.Links))
-	for i := range c.ResistanceFactor {
-		c.ResistanceFactor[i] = 1
-	}
-	sse := func(f float64) float64 {
-		c.ResistanceFactor[l] = 1 / (f * f)
-		sol, err := d.solver.Solve(&c, base)
-		if err != nil {
-			return math.Inf(1)
-		}
-		e := 0.0
-		for k, si := range ev.sensors {
-			n := d.sens[si].node
-			r := ev.dr[k] - (sol.Head[n] - base.Head[n])
-			e += ev.w[k] * r * r
-		}
-		return e
-	}
-	f, e := golden(sse, 0.01, 1, 12)
-	return f, e + ev.wI*ev.dI*ev.dI
+	return f, ev.misfit(func(k int) float64 { return dh[k] }) + ev.wI*ev.dI*ev.dI
 }
+
+// openSamples are the open fractions at which fitOpenFraction samples a
+// link's head response: from 60% down to 1% open, about evenly in the
+// log of the resistance factor 1/f².
+var openSamples = [...]float64{0.6, 0.3, 0.12, 0.04, 0.01}
 
 // refineLeaks re-scores the best linear leak candidates with full solves:
 // the residual a leak of size q at j leaves is what the water really does
 // (the measured pressures fall by the leak at j) minus what the
 // inflow-matched model does (it spreads q over the zone's demand). Near a
-// logger a large leak is far from linear. q < 0 fits q to each candidate
-// (golden section over (0, 3·max(dI, linear size)]).
-func (d *Detector) refineLeaks(ev evidence, cands []ranked, q float64) []ranked {
-	c := d.refConditions(ev)
-	base, err := d.solver.Solve(&c, d.prevMat)
-	if err != nil {
-		return cands
-	}
-	zone := d.zones[ev.zone]
-	spread := func(qq float64) (*hydraulic.Solution, error) {
-		cc := c
-		cc.Demand = append([]float64(nil), c.Demand...)
-		total := 0.0
-		for _, j := range zone.junctions {
-			total += c.Demand[j]
-		}
-		if total > 0 {
-			for _, j := range zone.junctions {
-				cc.Demand[j] *= 1 + qq/total
-			}
-		}
-		return d.solver.Solve(&cc, base)
-	}
-	misfit := func(j int, qq float64, model *hydraulic.Solution) float64 {
-		cc := c
-		cc.Demand = append([]float64(nil), c.Demand...)
-		cc.Demand[j] += qq
-		real, err := d.solver.Solve(&cc, base)
-		if err != nil {
-			return math.Inf(1)
-		}
-		e := 0.0
-		for k, si := range ev.sensors {
-			n := d.sens[si].node
-			r := ev.dr[k] - ((real.Head[n] - base.Head[n]) - (model.Head[n] - base.Head[n]))
-			e += ev.w[k] * r * r
-		}
-		if q < 0 {
-			e += ev.wI * (ev.dI - qq) * (ev.dI - qq)
-		}
-		return e
-	}
+// logger a large leak is far from linear.
+//
+// q ≥ 0 is the size the balance measured: one full solve per candidate.
+// q < 0 fits the size to each candidate over (0, 3·max(dI, linear size)]:
+// the real network's response is sampled by two full solves and the
+// model's by two shared ones, each taken as a quadratic through the
+// origin; the size that minimises the misfit of the surrogates (golden
+// section) is checked by a full solve of the leak, and that misfit (with
+// the model's side from its surrogate, which is nearly linear: the
+// spread water changes every junction's demand by a small fraction)
+// ranks the candidate.
+func (d *Detector) refineLeaks(ev evidence, sg *signatures, cands []ranked, q float64) []ranked {
+	rs := d.responses(ev, sg)
 	out := make([]ranked, 0, len(cands))
-	var fixedModel *hydraulic.Solution
 	if q >= 0 {
-		if fixedModel, err = spread(q); err != nil {
+		model, err := rs.spread(q)
+		if err != nil {
 			return cands
 		}
+		for _, cd := range cands {
+			real, err := rs.leak(cd.idx, q)
+			sse := math.Inf(1)
+			if err == nil {
+				sse = ev.misfit(func(k int) float64 { return real[k] - model[k] })
+			}
+			out = append(out, ranked{idx: cd.idx, sse: sse, size: q})
+		}
+		return out
 	}
-	for _, cd := range cands {
-		if q >= 0 {
-			out = append(out, ranked{idx: cd.idx, sse: misfit(cd.idx, q, fixedModel), size: q})
+	his := make([]float64, len(cands))
+	top := 0.0
+	for i, cd := range cands {
+		his[i] = 3 * math.Max(math.Max(ev.dI, cd.size), 0.1)
+		top = math.Max(top, his[i])
+	}
+	m1, err1 := rs.spread(top / 2)
+	m2, err2 := rs.spread(top)
+	if err1 != nil || err2 != nil {
+		return cands
+	}
+	model := fitQuadratic(top/2, m1, top, m2)
+	balance := func(qq float64) float64 { return ev.wI * (ev.dI - qq) * (ev.dI - qq) }
+	for i, cd := range cands {
+		hi := his[i]
+		r1, err1 := rs.leak(cd.idx, hi/2)
+		r2, err2 := rs.leak(cd.idx, hi)
+		if err1 != nil || err2 != nil {
+			out = append(out, ranked{idx: cd.idx, sse: math.Inf(1)})
 			continue
 		}
-		hi := 3 * math.Max(math.Max(ev.dI, cd.size), 0.1)
-		f := func(qq float64) float64 {
-			m, err := spread(qq)
-			if err != nil {
-				return math.Inf(1)
-			}
-			return misfit(cd.idx, qq, m)
+		real := fitQuadratic(hi/2, r1, hi, r2)
+		best, _ := golden(func(qq float64) float64 {
+			return ev.misfit(func(k int) float64 { return real.at(k, qq) - model.at(k, qq) }) + balance(qq)
+		}, 0, hi, 40)
+		rb, err := rs.leak(cd.idx, best)
+		sse := math.Inf(1)
+		if err == nil {
+			sse = ev.misfit(func(k int) float64 { return rb[k] - model.at(k, best) }) + balance(best)
 		}
-		best, e := golden(f, 0, hi, 9)
-		out = append(out, ranked{idx: cd.idx, sse: e, size: best})
+		out = append(out, ranked{idx: cd.idx, sse: sse, size: best})
 	}
 	return out
 }
 
 // refineBlockages re-scores the best linear blockage candidates with the
 // non-linear open-fraction fit.
-func (d *Detector) refineBlockages(ev evidence, cands []ranked) []ranked {
+func (d *Detector) refineBlockages(ev evidence, sg *signatures, cands []ranked) []ranked {
+	rs := d.responses(ev, sg)
 	out := make([]ranked, 0, len(cands))
 	for _, cd := range cands {
-		f, e := d.fitOpenFraction(cd.idx, ev)
+		f, e := d.fitOpenFraction(cd.idx, ev, rs)
 		out = append(out, ranked{idx: cd.idx, sse: e, size: f})
 	}
 	return out
@@ -246,7 +377,7 @@ func (d *Detector) signatures(ev evidence) (*signatures, error) {
 	if err != nil {
 		return nil, fmt.Errorf("sensitivities: %w", err)
 	}
-	sg := &signatures{sens: sens, ubar: make([]float64, len(sensors))}
+	sg := &signatures{sens: sens, ubar: make([]float64, len(sensors)), cond: c, ref: ref}
 	total := 0.0
 	for _, j := range d.zones[zi].junctions {
 		total += c.Demand[j]
@@ -416,7 +547,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		return true
 	}
 	short, _ := rank(d.leakFits(zi, ev, sg, size), shortlist)
-	top, scores := rank(d.refineLeaks(ev, short, size), d.cfg.Candidates)
+	top, scores := rank(d.refineLeaks(ev, sg, short, size), d.cfg.Candidates)
 	meterSSE := 0.0
 	for k := range ev.sensors {
 		r := ev.dr[k] + size*sg.ubar[k]
@@ -444,6 +575,52 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), f.Candidates[0].ID)
 	d.accept(zi, ev, size, now, f)
 	return true
+}
+
+// hypotheses are the ranked physical explanations of a residual picture:
+// blockages and leaks, each with the misfit of its best candidate, or
+// +Inf where that kind is not a candidate explanation at all.
+type hypotheses struct {
+	blocks, leaks           []ranked
+	blockScores, leakScores []float64
+	bestBlockage, bestLeak  float64
+}
+
+// physicalHypotheses ranks blockages and leaks for the evidence of a
+// residual alarm: the linear fits at every link and junction of the zone
+// (adjoint signatures), then the non-linear re-scoring of each shortlist.
+// Each explanation must matter in practice as well as fit: a blockage
+// must move some logger by more than that logger's accuracy, and a leak
+// must show in the zone balance (the primary leak evidence), at least
+// two of its σ above normal; a kind that cannot pass is not re-scored.
+func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
+	hy := hypotheses{bestBlockage: math.Inf(1), bestLeak: math.Inf(1)}
+	if len(ev.sensors) < 2 {
+		return hy
+	}
+	sg, err := d.signatures(ev)
+	if err != nil {
+		return hy
+	}
+	if d.largestChange(ev) {
+		short, _ := rank(d.blockageFits(ev.zone, ev, sg), shortlist)
+		hy.blocks, hy.blockScores = rank(d.refineBlockages(ev, sg, short), d.cfg.Candidates)
+		if len(hy.blocks) > 0 {
+			hy.bestBlockage = hy.blocks[0].sse
+		}
+	}
+	if z := ev.dI * math.Sqrt(ev.wI); ev.wI > 0 && z > 2 {
+		lq := -1.0
+		if z > 3 {
+			lq = ev.dI // the balance moved clearly: it measures the leak
+		}
+		short, _ := rank(d.leakFits(ev.zone, ev, sg, -1), shortlist)
+		hy.leaks, hy.leakScores = rank(d.refineLeaks(ev, sg, short, lq), d.cfg.Candidates)
+		if len(hy.leaks) > 0 && hy.leaks[0].size > 0 {
+			hy.bestLeak = hy.leaks[0].sse
+		}
+	}
+	return hy
 }
 
 // residualHypothesis explains one logger's residual change when the zone
@@ -481,33 +658,9 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 			faultSSE += ev.w[k] * ev.dr[k] * ev.dr[k]
 		}
 	}
-	var blocks, leaks []ranked
-	if len(ev.sensors) > 1 {
-		sg, err := d.signatures(ev)
-		if err == nil {
-			blocks = d.blockageFits(zi, ev, sg)
-			leaks = d.leakFits(zi, ev, sg, -1)
-		}
-	}
-	bTop, _ := rank(blocks, shortlist)
-	lTop, _ := rank(leaks, shortlist)
-	bTop, bScores := rank(d.refineBlockages(ev, bTop), d.cfg.Candidates)
-	lq := -1.0
-	if ev.wI > 0 && ev.dI*math.Sqrt(ev.wI) > 3 {
-		lq = ev.dI // the balance moved clearly: it measures the leak
-	}
-	lTop, lScores := rank(d.refineLeaks(ev, lTop, lq), d.cfg.Candidates)
-	bestB, bestL := math.Inf(1), math.Inf(1)
-	// Each explanation must matter in practice as well as fit: a blockage
-	// must move some logger by more than that logger's accuracy, and a
-	// leak must show in the zone balance (the primary leak evidence), at
-	// least two of its σ above normal.
-	if len(bTop) > 0 && d.largestChange(ev) {
-		bestB = bTop[0].sse
-	}
-	if len(lTop) > 0 && lTop[0].size > 0 && ev.wI > 0 && ev.dI*math.Sqrt(ev.wI) > 2 {
-		bestL = lTop[0].sse
-	}
+	hy := d.physicalHypotheses(ev)
+	bTop, bScores, lTop, lScores := hy.blocks, hy.blockScores, hy.leaks, hy.leakScores
+	bestB, bestL := hy.bestBlockage, hy.bestLeak
 	desc := describeResiduals(d, ev, 3)
 	switch {
 	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:

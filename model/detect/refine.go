@@ -109,13 +109,13 @@ func (d *Detector) rerank(w *watch) {
 	switch f.Kind {
 	case finding.Leak:
 		short, _ := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), shortlist)
-		top, scores := rank(d.refineLeaks(ev, short, f.SizeLPS), d.cfg.Candidates)
+		top, scores := rank(d.refineLeaks(ev, sg, short, f.SizeLPS), d.cfg.Candidates)
 		for i, r := range top {
 			ids = append(ids, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
 		}
 	case finding.Blockage:
 		short, _ := rank(d.blockageFits(w.Zone, ev, sg), shortlist)
-		top, scores := rank(d.refineBlockages(ev, short), d.cfg.Candidates)
+		top, scores := rank(d.refineBlockages(ev, sg, short), d.cfg.Candidates)
 		for i, r := range top {
 			ids = append(ids, finding.Candidate{ID: d.net.Links[r.idx].ID, Score: round2(scores[i])})
 		}
