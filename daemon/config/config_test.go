@@ -452,3 +452,55 @@ func TestCheckURL(t *testing.T) {
 		}
 	}
 }
+
+// A unit whose SI prefix letter is in the wrong case is an error that
+// names the place and the spelling meant (m is milli, M is mega: 10^9
+// apart, BIPM SI Brochure 9th ed. 2019 §3); harmless case variants are
+// taken and stored as the unit's symbol.
+func TestUnitCase(t *testing.T) {
+	src := `network: ../network/two-loop.geojson
+sensors:
+  - {id: P-1, quantity: pressure, at: J-1, topic: t/P-1, unit: mpa}
+  - {id: P-2, quantity: pressure, at: J-2, topic: t/P-2, unit: KPA}
+  - {id: F-1, quantity: flow, at: P-1, topic: t/F-1, unit: LPS}
+  - {id: F-2, quantity: flow, at: P-2, topic: t/F-2, unit: ml/d}
+  - {id: F-3, quantity: flow, at: P-3, topic: t/F-3, unit: M3/H}
+`
+	path := filepath.Join(testdata, "units.yaml")
+	c, probs := Inspect([]byte(src), path)
+	var got []string
+	for _, p := range probs {
+		if p.Severity == Error {
+			got = append(got, p.String())
+		}
+	}
+	want := []string{
+		`units.yaml:3: sensor P-1: unit: "mpa" is not a pressure unit (SI prefixes are case-sensitive: m is milli, M is mega; did you mean "MPa"?)`,
+		`units.yaml:6: sensor F-2: unit: "ml/d" is not a flow unit (SI prefixes are case-sensitive: m is milli, M is mega; did you mean "ML/d"?)`,
+	}
+	if len(got) != len(want) {
+		t.Fatalf("got %d errors, want %d:\n  %s", len(got), len(want), strings.Join(got, "\n  "))
+	}
+	for i := range want {
+		if !strings.HasSuffix(got[i], want[i]) {
+			t.Errorf("error %d:\n got %s\nwant ...%s", i, got[i], want[i])
+		}
+	}
+	if c == nil {
+		t.Fatal("Inspect returned no configuration")
+	}
+	for id, unit := range map[string]string{"P-2": "kPa", "F-1": "L/s", "F-3": "m3/h"} {
+		found := false
+		for _, s := range c.Sensors {
+			if s.ID == id {
+				found = true
+				if s.Unit != unit {
+					t.Errorf("sensor %s: unit %q, want %q", id, s.Unit, unit)
+				}
+			}
+		}
+		if !found {
+			t.Errorf("sensor %s: not in the configuration", id)
+		}
+	}
+}

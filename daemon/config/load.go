@@ -720,6 +720,17 @@ func (l *loader) sensors(c *Config, raw *rawConfig, doc *yaml.Node) {
 	}
 }
 
+// unitMessage says why unit is not a unit of q: the hint of units'
+// error (a prefix letter in the wrong case, the quantity the unit
+// belongs to, a near spelling), else the units known for q.
+func unitMessage(q telemetry.Quantity, unit string, err error) string {
+	var ue *units.UnitError
+	if errors.As(err, &ue) {
+		return fmt.Sprintf("%q is not a %s unit (%s)", unit, q, ue.Detail())
+	}
+	return fmt.Sprintf("%q is not a %s unit (known: %s)", unit, q, strings.Join(units.Names(q), ", "))
+}
+
 // sensorKeys are the keys of a sensor entry, shared with the scenario file.
 var sensorKeys = keysOf(reflect.TypeFor[rawSensor]())
 
@@ -799,7 +810,7 @@ func (l *loader) sensor(c *Config, file string, i int, item *yaml.Node, seen map
 		if r.Unit == "" {
 			s.Unit = q.CanonicalUnit()
 		} else if sym, err := units.Symbol(q, r.Unit); err != nil {
-			errf("unit", "%q is not a %s unit (known: %s)", r.Unit, q, strings.Join(units.Names(q), ", "))
+			errf("unit", "%s", unitMessage(q, r.Unit, err))
 		} else {
 			s.Unit = sym
 		}

@@ -78,6 +78,11 @@ func TestPipeline(t *testing.T) {
 		{"town/north/P-104", "1e308", NotFinite, "P-104", 0, "", time.Time{}}, // finite in bar, Inf in m
 		{"town/north/P-104", `{"value":1,"unit":"L/s"}`, UnknownUnit, "P-104", 0, "", time.Time{}},
 		{"town/north/P-104", `{"value":1,"unit":"furlong"}`, UnknownUnit, "P-104", 0, "", time.Time{}},
+		// SI prefixes are case-sensitive (BIPM SI Brochure 9th ed. 2019
+		// §3): "mpa" would be the millipascal, 10^9 below the MPa, so it
+		// is refused; "MPA" can only be the megapascal.
+		{"town/north/P-104", `{"value":0.35,"unit":"mpa"}`, UnknownUnit, "P-104", 0, "", time.Time{}},
+		{"town/north/P-104", `{"value":0.35,"unit":"MPA"}`, Accepted, "P-104", 0.35e6 / 9806.65, "MPa", arrival},
 		{"town/north/P-104", "13", OutOfRange, "P-104", 0, "", time.Time{}}, // 132.6 m > 120
 		{"town/north/P-104", "-0.1", OutOfRange, "P-104", 0, "", time.Time{}},
 		{"town/north/P-104", `{"value":1,"time":"2026-03-02T01:20:00Z"}`, TooFarFuture, "P-104", 0, "", time.Time{}},
@@ -114,8 +119,8 @@ func TestPipeline(t *testing.T) {
 	if len(got) != len(want) {
 		t.Errorf("rejection counters %v, want %v", got, want)
 	}
-	if n := p.AcceptedCount(-1); n != 10 {
-		t.Errorf("accepted %d, want 10", n)
+	if n := p.AcceptedCount(-1); n != 11 {
+		t.Errorf("accepted %d, want 11", n)
 	}
 	if n := p.Processed(); n != uint64(len(cases)) {
 		t.Errorf("processed %d, want %d", n, len(cases))

@@ -320,8 +320,15 @@ func decodeSensors(seq *yaml.Node, file string) ([]telemetry.Sensor, []int, []er
 		if sn.Unit == "" && q != 0 {
 			sn.Unit = q.CanonicalUnit()
 		}
-		if rs.Unit != "" && q != 0 && !units.Known(q, rs.Unit) {
-			add(valueLine(item, "unit"), "%s: unit %q is not a %s unit (known: %s)", where, rs.Unit, q, strings.Join(units.Names(q), ", "))
+		if rs.Unit != "" && q != 0 {
+			if _, err := units.Lookup(q, rs.Unit); err != nil {
+				detail := "known: " + strings.Join(units.Names(q), ", ")
+				var ue *units.UnitError
+				if errors.As(err, &ue) {
+					detail = ue.Detail()
+				}
+				add(valueLine(item, "unit"), "%s: unit %q is not a %s unit (%s)", where, rs.Unit, q, detail)
+			}
 		}
 		switch {
 		case rs.Min != nil && rs.Max != nil:

@@ -219,8 +219,10 @@ func TestBadCorpus(t *testing.T) {
 			`11: sensors[7]: id is missing`,
 			`12: sensors[8]: a sensor is a mapping (id, quantity, at, topic, unit, accuracy)`,
 			`5: sensors[1] P-1: duplicate id (first at line 4)`,
-			`13: sensors[9] P-9: unit "barr" is not a pressure unit (known: ` + strings.Join(units.Names(telemetry.Pressure), ", ") + `)`,
-			`15: events[0] (sensor-fault at P-99): no sensor "P-99" in the scenario's sensors`,
+			`13: sensors[9] P-9: unit "barr" is not a pressure unit (did you mean "bar"?)`,
+			`14: sensors[10] P-10: unit "mld" is not a flow unit (SI prefixes are case-sensitive: m is milli, M is mega; did you mean "MLD"?)`,
+			`15: sensors[11] P-11: unit "furlong" is not a level unit (known: ` + strings.Join(units.Names(telemetry.Level), ", ") + `)`,
+			`17: events[0] (sensor-fault at P-99): no sensor "P-99" in the scenario's sensors`,
 		},
 		"settings.bad.yaml": {
 			`10: noise: unknown quantity "temperature" (pressure, flow, level or head)`,

@@ -34,21 +34,38 @@
 //     Appendix B.8 "gallon [U.S.] 3.785 412 E-03 m³"). gpm is US gallons
 //     per minute; MGD is US million gallons per day (not imperial).
 //   - ML/d is megalitres per day (10^6 L / 86 400 s), the water trade's
-//     unit; there are no millilitre units, so "ml/d" also means ML/d.
+//     unit. "ml/d" is millilitres per day, 10^9 times less, and is not
+//     read as ML/d (see Names below).
 //
 // # Names
 //
-// Unit names are matched case-insensitively after removing spaces and
-// turning "³" and "^3" into "3"; several aliases are accepted (see the
-// table in units.go, or Names). For pressure, a bare "m" or "ft" means a
-// column of water (m H2O, ft H2O); for level and head it is a length.
+// Unit names are matched after removing spaces and turning "³" and "^3"
+// into "3"; several aliases are accepted (see the table in units.go, or
+// Names). For pressure, a bare "m" or "ft" means a column of water
+// (m H2O, ft H2O); for level and head it is a length.
+//
+// Letter case does not matter, except in an SI prefix whose other case
+// is another prefix: SI prefix symbols are case-sensitive (BIPM, The
+// International System of Units, 9th ed. 2019, §3), and m (milli) and M
+// (mega) are 10^9 apart. So MPa, mbar, ML/d (also MLD, Ml/day) and mm
+// must have that first letter as written: "MPA" and "Mpa" are MPa, but
+// "mpa" and "mPa" are refused, as are "Mbar", "ml/d", "mld" and "Mm".
+// Everywhere else case is harmless and ignored: "kpa" and "KPA" are kPa
+// (K is not a prefix), "l/s", "L/s" and "LPS" are L/s (the litre is l or
+// L), "M3/H" is m3/h, "mgd" is MGD (there is no milligallon), "BAR" is
+// bar.
 //
 // # Errors
 //
 // An unknown unit, or a unit of the wrong quantity (L/s for a pressure
-// sensor), is an error wrapping ErrUnknownUnit that names the unit and the
-// quantity. Conversion itself never fails: every conversion is linear with a
-// zero offset, value_canonical = value × Factor.
+// sensor), is a *UnitError wrapping ErrUnknownUnit that names the unit and
+// the quantity, with a Hint where one helps: the prefix letter in the
+// wrong case and the spelling meant (`"mpa" is not a pressure unit (SI
+// prefixes are case-sensitive: m is milli, M is mega; did you mean
+// "MPa"?)`), the quantity the unit belongs to, or a near misspelling
+// (never one that only adds or drops a prefix: mmH2O is not mH2O).
+// Conversion itself never fails: every conversion is linear with a zero
+// offset, value_canonical = value × Factor.
 //
 // # Speed
 //

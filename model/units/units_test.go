@@ -2,8 +2,10 @@ package units
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"plumbline/model/telemetry"
@@ -107,7 +109,13 @@ func TestAliases(t *testing.T) {
 	}{
 		{telemetry.Pressure, "BAR", "bar"},
 		{telemetry.Pressure, " kpa ", "kPa"},
-		{telemetry.Pressure, "mpa", "MPa"},
+		{telemetry.Pressure, "MPA", "MPa"},
+		{telemetry.Pressure, "Mpa", "MPa"},
+		{telemetry.Pressure, "KPA", "kPa"},
+		{telemetry.Pressure, "KPa", "kPa"},
+		{telemetry.Pressure, "HPA", "mbar"},
+		{telemetry.Pressure, "mBar", "mbar"},
+		{telemetry.Pressure, "MH2O", "m"},
 		{telemetry.Pressure, "PSI", "psi"},
 		{telemetry.Pressure, "m H2O", "m"},
 		{telemetry.Pressure, "mH2O", "m"},
@@ -119,12 +127,20 @@ func TestAliases(t *testing.T) {
 		{telemetry.Flow, "M3/H", "m3/h"},
 		{telemetry.Flow, "l/s", "L/s"},
 		{telemetry.Flow, "lps", "L/s"},
-		{telemetry.Flow, "ml/d", "ML/d"},
+		{telemetry.Flow, "L/s", "L/s"},
+		{telemetry.Flow, "LPS", "L/s"},
+		{telemetry.Flow, "Ml/d", "ML/d"},
+		{telemetry.Flow, "ML/D", "ML/d"},
 		{telemetry.Flow, "MLD", "ML/d"},
+		{telemetry.Flow, "Ml/Day", "ML/d"},
+		{telemetry.Flow, "MEGALITRE/DAY", "ML/d"},
 		{telemetry.Flow, "US gpm", "gpm"},
 		{telemetry.Flow, "mgd", "MGD"},
 		{telemetry.Flow, "", "L/s"},
 		{telemetry.Level, "FT", "ft"},
+		{telemetry.Level, "CM", "cm"},
+		{telemetry.Level, "mM", "mm"},
+		{telemetry.Head, "METRES", "m"},
 		{telemetry.Level, "feet", "ft"},
 		{telemetry.Head, "metre", "m"},
 	}
@@ -132,6 +148,152 @@ func TestAliases(t *testing.T) {
 		got, err := Symbol(c.q, c.spelling)
 		if err != nil || got != c.wantSymbol {
 			t.Errorf("Symbol(%v, %q) = %q, %v; want %q", c.q, c.spelling, got, err, c.wantSymbol)
+		}
+	}
+}
+
+// SI prefix symbols are case-sensitive (BIPM, The International System
+// of Units, 9th ed. 2019, §3): m is milli (10^-3) and M mega (10^6), so
+// mPa and MPa, mbar and Mbar, mL/d and ML/d, mm and Mm each differ by a
+// factor of 10^9 (SI Brochure 9th ed. Table 7). A spelling whose prefix
+// letter is in the other case is refused, naming the unit and the
+// spelling meant, never read as the unit that differs only in case.
+func TestPrefixCase(t *testing.T) {
+	cases := []struct {
+		q          telemetry.Quantity
+		unit, want string
+	}{
+		{telemetry.Pressure, "mpa", "MPa"},
+		{telemetry.Pressure, "mPa", "MPa"},
+		{telemetry.Pressure, "mPA", "MPa"},
+		{telemetry.Pressure, "Mbar", "mbar"},
+		{telemetry.Pressure, "MBAR", "mbar"},
+		{telemetry.Flow, "ml/d", "ML/d"},
+		{telemetry.Flow, "mL/d", "ML/d"},
+		{telemetry.Flow, "mld", "MLD"},
+		{telemetry.Flow, "ml/day", "Ml/day"},
+		{telemetry.Level, "Mm", "mm"},
+		{telemetry.Head, "MM", "mm"},
+	}
+	for _, c := range cases {
+		_, err := Lookup(c.q, c.unit)
+		var ue *UnitError
+		if !errors.As(err, &ue) || !errors.Is(err, ErrUnknownUnit) {
+			t.Errorf("Lookup(%v, %q) = %v, want a *UnitError wrapping ErrUnknownUnit", c.q, c.unit, err)
+			continue
+		}
+		msg := err.Error()
+		for _, part := range []string{
+			fmt.Sprintf("%q is not a %v unit", c.unit, c.q),
+			"SI prefixes are case-sensitive: ",
+			fmt.Sprintf("did you mean %q?", c.want),
+		} {
+			if !strings.Contains(msg, part) {
+				t.Errorf("Lookup(%v, %q): error %q lacks %q", c.q, c.unit, msg, part)
+			}
+		}
+		if ue.Unit != c.unit || ue.Quantity != c.q {
+			t.Errorf("Lookup(%v, %q): UnitError names %q %v", c.q, c.unit, ue.Unit, ue.Quantity)
+		}
+		if Known(c.q, c.unit) {
+			t.Errorf("Known(%v, %q) = true, want false", c.q, c.unit)
+		}
+	}
+	// The suggestion is right: the unit meant converts by 10^9 times
+	// what the other prefix would give (10^6 / 10^-3).
+	mega, _ := ToCanonical(telemetry.Pressure, "MPa", 1)
+	if milli := 1e-3 / PascalPerMetreWater; !relClose(mega/milli, 1e9, 1e-15) {
+		t.Errorf("MPa / mPa = %g, want 1e9", mega/milli)
+	}
+}
+
+// TestTableCase checks every spelling of the table: as written it is its
+// unit; with its letter case changed it is still its unit unless the
+// first letter is a case-sensitive prefix, which must then be refused
+// with the spelling suggested.
+func TestTableCase(t *testing.T) {
+	for _, e := range table {
+		q := map[kind]telemetry.Quantity{kindPressure: telemetry.Pressure, kindFlow: telemetry.Flow, kindLength: telemetry.Level}[e.kind]
+		for _, name := range append([]string{e.symbol}, e.aliases...) {
+			prefixed := false
+			for _, p := range e.prefixed {
+				prefixed = prefixed || p == name
+			}
+			swapFirst := swapCase(name[:1]) + name[1:]
+			variants := []string{name, strings.ToUpper(name), strings.ToLower(name), swapCase(name), name[:1] + swapCase(name[1:])}
+			for _, v := range variants {
+				if prefixed && v[0] != name[0] {
+					continue
+				}
+				if sym, err := Symbol(q, v); err != nil || sym != e.symbol {
+					t.Errorf("Symbol(%v, %q) = %q, %v; want %q", q, v, sym, err, e.symbol)
+				}
+			}
+			// No variant, taken or not, contradicts the SI reading of
+			// its prefix letter.
+			for _, v := range append(variants, swapFirst) {
+				if u, err := Lookup(q, v); err == nil {
+					if msg := siReading(q, v, u); msg != "" {
+						t.Error(msg)
+					}
+				}
+			}
+			if !prefixed {
+				continue
+			}
+			_, err := Lookup(q, swapFirst)
+			if err == nil || !strings.Contains(err.Error(), fmt.Sprintf("did you mean %q?", name)) {
+				t.Errorf("Lookup(%v, %q) = %v, want a refusal suggesting %q", q, swapFirst, err, name)
+			}
+		}
+	}
+}
+
+// swapCase swaps the case of ASCII letters.
+func swapCase(s string) string {
+	b := []byte(s)
+	for i, c := range b {
+		switch {
+		case 'a' <= c && c <= 'z':
+			b[i] = c - 'a' + 'A'
+		case 'A' <= c && c <= 'Z':
+			b[i] = c - 'A' + 'a'
+		}
+	}
+	return string(b)
+}
+
+// An unknown unit's error says what it knows: the quantity the unit
+// belongs to, or a near spelling; never a spelling that only adds or
+// drops a prefix (mmH2O is not mH2O: a factor of 1000).
+func TestHints(t *testing.T) {
+	cases := []struct {
+		q          telemetry.Quantity
+		unit, hint string
+	}{
+		{telemetry.Pressure, "barr", `did you mean "bar"?`},
+		{telemetry.Pressure, "kpaa", `did you mean "kPa"?`},
+		{telemetry.Flow, "m3/hh", `did you mean "m3/h"?`},
+		{telemetry.Pressure, "L/s", "L/s is a flow unit"},
+		{telemetry.Level, "psi", "psi is a pressure unit"},
+		{telemetry.Flow, "cm", "cm is a length, for level and head"},
+		{telemetry.Pressure, "mmH2O", ""},
+		{telemetry.Pressure, "kbar", ""},
+		{telemetry.Pressure, "furlong", ""},
+		{telemetry.Pressure, "   ", ""},
+	}
+	for _, c := range cases {
+		_, err := Lookup(c.q, c.unit)
+		var ue *UnitError
+		if !errors.As(err, &ue) {
+			t.Errorf("Lookup(%v, %q) = %v, want a *UnitError", c.q, c.unit, err)
+			continue
+		}
+		if ue.Hint != c.hint {
+			t.Errorf("Lookup(%v, %q): hint %q, want %q", c.q, c.unit, ue.Hint, c.hint)
+		}
+		if want := fmt.Sprintf("units: %q is not a %v unit", c.unit, c.q); !strings.HasPrefix(err.Error(), want) {
+			t.Errorf("Lookup(%v, %q): error %q, want it to start %q", c.q, c.unit, err, want)
 		}
 	}
 }
