@@ -57,29 +57,61 @@ func PatternAt(net *network.Network, name string, t time.Time, loc *time.Locatio
 // times its pattern at t, and 0 for other nodes. zoneLoc gives the
 // location of each zone's clock (nil map or missing zone: UTC). It
 // returns dst, allocated if nil.
+//
+// Each (pattern, zone) pair is looked up once per call. Networks have a
+// handful of such pairs and neighbouring junctions mostly share one, so
+// the pairs are kept in a short list (the last pair used first) rather
+// than hashed per junction: the detector calls Base every model step.
 func Base(net *network.Network, t time.Time, zoneLoc map[string]*time.Location, dst []float64) []float64 {
 	if dst == nil {
 		dst = make([]float64, len(net.Nodes))
 	}
-	// Each (pattern, zone clock) pair is looked up once per call.
-	type key struct {
-		pattern string
-		loc     *time.Location
+	type pair struct {
+		pattern, zone string
+		mult          float64
 	}
-	mult := map[key]float64{}
+	var store [16]pair
+	pairs := store[:0]
+	var many map[[2]string]float64 // beyond maxPairs pairs
+	const maxPairs = 32
+	last := -1
 	for i := range net.Nodes {
 		n := &net.Nodes[i]
 		if n.Kind != network.Junction || n.Demand == 0 {
 			dst[i] = 0
 			continue
 		}
-		k := key{n.Pattern, zoneLoc[n.Zone]}
-		m, ok := mult[k]
-		if !ok {
-			m = PatternAt(net, n.Pattern, t, k.loc)
-			mult[k] = m
+		if last >= 0 && pairs[last].pattern == n.Pattern && pairs[last].zone == n.Zone {
+			dst[i] = n.Demand * pairs[last].mult
+			continue
 		}
-		dst[i] = n.Demand * m
+		last = -1
+		for j := range pairs {
+			if pairs[j].pattern == n.Pattern && pairs[j].zone == n.Zone {
+				last = j
+				break
+			}
+		}
+		if last >= 0 {
+			dst[i] = n.Demand * pairs[last].mult
+			continue
+		}
+		if len(pairs) == maxPairs {
+			k := [2]string{n.Pattern, n.Zone}
+			m, ok := many[k]
+			if !ok {
+				if many == nil {
+					many = map[[2]string]float64{}
+				}
+				m = PatternAt(net, n.Pattern, t, zoneLoc[n.Zone])
+				many[k] = m
+			}
+			dst[i] = n.Demand * m
+			continue
+		}
+		pairs = append(pairs, pair{n.Pattern, n.Zone, PatternAt(net, n.Pattern, t, zoneLoc[n.Zone])})
+		last = len(pairs) - 1
+		dst[i] = n.Demand * pairs[last].mult
 	}
 	return dst
 }

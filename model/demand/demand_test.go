@@ -1,6 +1,7 @@
 package demand
 
 import (
+	"fmt"
 	"math"
 	"testing"
 	"time"
@@ -53,5 +54,52 @@ func TestBase(t *testing.T) {
 	got := Base(net, time.Date(2026, 3, 4, 3, 0, 0, 0, time.UTC), nil, nil)
 	if got[0] != 6 {
 		t.Errorf("Base = %g, want 2 L/s × 3 = 6", got[0])
+	}
+}
+
+// Base is, junction by junction, the base demand times PatternAt on the
+// junction's zone clock (the rule of the package doc), bit for bit, also
+// with more (pattern, zone) pairs than its short list holds and with
+// junctions of one pair spread through the network; other nodes and
+// junctions without demand get 0.
+func TestBaseIsDemandTimesPattern(t *testing.T) {
+	var nodes []network.Node
+	for i := 0; i < 3000; i++ {
+		n := network.Node{ID: fmt.Sprintf("J%d", i), Kind: network.Junction, Demand: 0.1 + float64(i%13)/7,
+			Pattern: fmt.Sprintf("p%d", (i*7)%11), Zone: fmt.Sprintf("z%d", (i/5)%6)}
+		switch {
+		case i%97 == 0:
+			n.Kind = network.Reservoir
+		case i%89 == 0:
+			n.Demand = 0
+		case i%31 == 0:
+			n.Pattern = "" // no pattern: multiplier 1
+		}
+		nodes = append(nodes, n)
+	}
+	net := network.New(nodes, nil)
+	for p := 0; p < 11; p++ {
+		vals := make([]float64, 24)
+		for h := range vals {
+			vals[h] = 0.3 + float64((h*(p+3))%17)/9
+		}
+		net.Patterns[fmt.Sprintf("p%d", p)] = vals
+		if p%2 == 0 {
+			net.Patterns[fmt.Sprintf("p%d-weekend", p)] = vals[:12]
+		}
+	}
+	zoneLoc := map[string]*time.Location{"z1": time.FixedZone("east3", 3*3600), "z2": time.FixedZone("west5", -5*3600), "z4": time.FixedZone("east3b", 3*3600)}
+	for _, at := range []time.Time{time.Date(2026, 3, 4, 3, 17, 0, 0, time.UTC), time.Date(2026, 3, 7, 22, 40, 0, 0, time.UTC)} {
+		got := Base(net, at, zoneLoc, nil)
+		for i := range net.Nodes {
+			n := &net.Nodes[i]
+			want := 0.0
+			if n.Kind == network.Junction && n.Demand != 0 {
+				want = n.Demand * PatternAt(net, n.Pattern, at, zoneLoc[n.Zone])
+			}
+			if math.Float64bits(got[i]) != math.Float64bits(want) {
+				t.Fatalf("%s at %s: Base %v, demand × pattern %v", n.ID, at, got[i], want)
+			}
+		}
 	}
 }

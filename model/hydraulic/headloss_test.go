@@ -2,6 +2,7 @@ package hydraulic
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 )
 
@@ -191,6 +192,25 @@ func TestLeakFlowFAVAD(t *testing.T) {
 			if math.Abs(d-fd) > 1e-5*math.Abs(fd) {
 				t.Errorf("N=%g p=%g: dq/dp %g, difference %g", n, p, d, fd)
 			}
+		}
+	}
+}
+
+// hwPow must be math.Pow(x, 0.852) to the last bit (the Go standard
+// library's Pow is the reference), over the flows a network carries
+// (1e-12 to 1e6 L/s, log-uniform), the edges of its fast range and the
+// special values it hands on to math.Pow.
+func TestHWPowIsMathPow(t *testing.T) {
+	rnd := rand.New(rand.NewPCG(3, 5))
+	xs := []float64{0, math.Copysign(0, -1), 1, 1e-250, 1.0000001e-250, 1e250, 9.999999e249, 5e-324, 1e-310, 1e300,
+		math.Inf(1), math.NaN(), 0.5, 2, 1000, math.Nextafter(1, 2), math.Nextafter(1, 0)}
+	for i := 0; i < 200000; i++ {
+		xs = append(xs, math.Exp(rnd.Float64()*(math.Log(1e6)-math.Log(1e-12))+math.Log(1e-12)))
+	}
+	for _, x := range xs {
+		got, want := hwPow(x), math.Pow(x, hwFlowExp-1)
+		if math.Float64bits(got) != math.Float64bits(want) && !(math.IsNaN(got) && math.IsNaN(want)) {
+			t.Fatalf("hwPow(%g) = %v, math.Pow gives %v", x, got, want)
 		}
 	}
 }

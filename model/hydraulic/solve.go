@@ -13,12 +13,34 @@ import (
 // network (nil: a cold start). It returns the solution, or an error:
 // a *NotConvergedError (with the last iterate as the Solution), a
 // *DisconnectedError naming junctions cut off from every source, or an
-// error naming the bad entry of c.
+// error naming the bad entry of c. The Solution is freshly allocated.
 func (s *Solver) Solve(c *Conditions, warm *Solution) (*Solution, error) {
+	return s.SolveInto(c, warm, nil)
+}
+
+// SolveInto is Solve writing the solution into the memory of dst, so
+// that a sequence of warm solves (one per model step) allocates nothing.
+// dst must be nil (a fresh Solution is allocated, as Solve does) or a
+// Solution of a Solver of the same network; it may be warm itself (the
+// warm start is read before dst is overwritten). The result is bit for
+// bit that of Solve with the same c and warm. The returned Solution is
+// dst when dst is not nil. On an error other than *NotConvergedError,
+// dst's contents are unspecified (a partly written iterate): do not use
+// it as a warm start after such an error.
+func (s *Solver) SolveInto(c *Conditions, warm, dst *Solution) (*Solution, error) {
 	if c == nil {
 		c = &Conditions{}
 	}
-	sol, err := s.newSolution(c)
+	if dst != nil && !s.fits(dst) {
+		dst = nil
+	}
+	if warm != nil && !s.fitsWarm(warm) {
+		warm = nil
+	}
+	if warm != nil && dst != nil && (warm == dst || sharesMemory(warm, dst)) {
+		warm = s.keepWarm(warm)
+	}
+	sol, err := s.newSolution(c, dst)
 	if err != nil {
 		return nil, err
 	}
@@ -29,7 +51,35 @@ func (s *Solver) Solve(c *Conditions, warm *Solution) (*Solution, error) {
 	return s.iterate(sol)
 }
 
-func (s *Solver) newSolution(c *Conditions) (*Solution, error) {
+// fits reports whether sol's slices have this Solver's network's sizes.
+func (s *Solver) fits(sol *Solution) bool {
+	nn, nl := len(s.net.Nodes), len(s.net.Links)
+	return len(sol.Head) == nn && len(sol.Pressure) == nn && len(sol.Demand) == nn && len(sol.Leak) == nn &&
+		len(sol.Flow) == nl && len(sol.Velocity) == nl && len(sol.Headloss) == nl && len(sol.State) == nl &&
+		len(sol.leakC) == nn && len(sol.leakN) == nn && len(sol.speed) == nl && len(sol.setting) == nl && len(sol.factor) == nl
+}
+
+// fitsWarm reports whether warm can start a solve of this network.
+func (s *Solver) fitsWarm(warm *Solution) bool {
+	return len(warm.Head) == len(s.net.Nodes) && len(warm.Flow) == len(s.net.Links) && len(warm.State) == len(s.net.Links)
+}
+
+// sharesMemory reports whether the warm start's slices are dst's.
+func sharesMemory(warm, dst *Solution) bool {
+	same := func(a, b []float64) bool { return len(a) > 0 && len(b) > 0 && &a[0] == &b[0] }
+	return same(warm.Head, dst.Head) || same(warm.Flow, dst.Flow) || (len(warm.State) > 0 && len(dst.State) > 0 && &warm.State[0] == &dst.State[0])
+}
+
+// keepWarm copies what initialise reads of a warm start (heads, flows,
+// states) into the Solver's workspace, for a solve that overwrites it.
+func (s *Solver) keepWarm(warm *Solution) *Solution {
+	s.warm.Head = append(s.warm.Head[:0], warm.Head...)
+	s.warm.Flow = append(s.warm.Flow[:0], warm.Flow...)
+	s.warm.State = append(s.warm.State[:0], warm.State...)
+	return &s.warm
+}
+
+func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 	net := s.net
 	nn, nl := len(net.Nodes), len(net.Links)
 	check := func(name string, got, want int) error {
@@ -55,15 +105,29 @@ func (s *Solver) newSolution(c *Conditions) (*Solution, error) {
 	if (c.LeakCoeff == nil) != (c.LeakExponent == nil) {
 		return nil, errors.New("hydraulic: conditions: LeakCoeff and LeakExponent must be given together")
 	}
-	sol := &Solution{
-		Head: make([]float64, nn), Pressure: make([]float64, nn),
-		Demand: make([]float64, nn), Leak: make([]float64, nn),
-		Flow: make([]float64, nl), Velocity: make([]float64, nl), Headloss: make([]float64, nl),
-		State: make([]LinkState, nl),
-		leakC: make([]float64, nn), leakN: make([]float64, nn),
-		speed: make([]float64, nl), setting: make([]float64, nl), factor: make([]float64, nl),
-		solver: s,
+	sol := dst
+	if sol == nil {
+		sol = &Solution{
+			Head: make([]float64, nn), Pressure: make([]float64, nn),
+			Demand: make([]float64, nn), Leak: make([]float64, nn),
+			Flow: make([]float64, nl), Velocity: make([]float64, nl), Headloss: make([]float64, nl),
+			State: make([]LinkState, nl),
+			leakC: make([]float64, nn), leakN: make([]float64, nn),
+			speed: make([]float64, nl), setting: make([]float64, nl), factor: make([]float64, nl),
+		}
+	} else {
+		// Everything a fresh Solution starts with at zero and the steps
+		// below do not all write.
+		clear(sol.Demand)
+		clear(sol.Leak)
+		clear(sol.leakC)
+		clear(sol.leakN)
+		clear(sol.Velocity)
+		clear(sol.speed)
+		clear(sol.setting)
+		sol.Iterations, sol.MaxFlowChange, sol.MaxImbalance, sol.Converged = 0, 0, 0, false
 	}
+	sol.solver = s
 	bad := func(v float64) bool { return math.IsNaN(v) || math.IsInf(v, 0) }
 	for i := range net.Nodes {
 		n := &net.Nodes[i]
@@ -163,8 +227,23 @@ func (s *Solver) defaultState(k int) LinkState {
 }
 
 // checkConnected finds junctions with no path of non-closed links to a
-// fixed-head node.
+// fixed-head node. The answer depends only on which links are closed: a
+// solve with the closed links of the last check that passed skips the
+// search.
 func (s *Solver) checkConnected(sol *Solution) error {
+	if s.connOK {
+		same := true
+		for k, st := range sol.State {
+			if (st == Closed) != s.connClosed[k] {
+				same = false
+				break
+			}
+		}
+		if same {
+			return nil
+		}
+	}
+	s.connOK = false
 	q := s.queue[:0]
 	for i := range s.seen {
 		s.seen[i] = s.jx[i] < 0
@@ -190,6 +269,10 @@ func (s *Solver) checkConnected(sol *Solution) error {
 	}
 	s.queue = q[:0]
 	if len(q) == len(s.seen) {
+		for k, st := range sol.State {
+			s.connClosed[k] = st == Closed
+		}
+		s.connOK = true
 		return nil
 	}
 	e := &DisconnectedError{}
@@ -265,6 +348,9 @@ func (s *Solver) initLeaks(sol *Solution) {
 	s.leaks = s.leaks[:0]
 	for _, i := range s.node {
 		n := &s.net.Nodes[i]
+		if n.LeakCoeff == 0 && sol.leakC[i] == 0 {
+			continue // flowForm is false for both
+		}
 		p := sol.Head[i] - n.Elevation
 		for _, cn := range [2][2]float64{{n.LeakCoeff, n.LeakExponent}, {sol.leakC[i], sol.leakN[i]}} {
 			if !flowForm(cn[0], cn[1]) {
@@ -281,6 +367,11 @@ func (s *Solver) initLeaks(sol *Solution) {
 // in head form.
 func (s *Solver) leakAt(i int, h float64, sol *Solution, all bool) (q, dq float64) {
 	n := &s.net.Nodes[i]
+	// A leak of coefficient 0 lets out nothing (LeakFlow gives 0, 0):
+	// skipping it adds no term, and adding +0 would change nothing.
+	if n.LeakCoeff == 0 && sol.leakC[i] == 0 {
+		return 0, 0
+	}
 	p := h - n.Elevation
 	for _, cn := range [2][2]float64{{n.LeakCoeff, n.LeakExponent}, {sol.leakC[i], sol.leakN[i]}} {
 		if !all && flowForm(cn[0], cn[1]) {

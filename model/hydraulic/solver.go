@@ -80,6 +80,13 @@ type Solver struct {
 	seen                                      []bool
 	ctrl                                      []int // link -> controlled node for active pressure valves, else -1
 
+	// warm keeps a warm start that SolveInto is about to overwrite.
+	warm Solution
+	// connClosed is the closed-link pattern of the last successful
+	// connectivity check (connOK): the check depends on nothing else.
+	connClosed []bool
+	connOK     bool
+
 	// Leaks solved in flow form (exponent below 1): their outflow
 	// iterates, and per node the sums of their Newton coefficients and
 	// the gap between iterate and law (for the imbalance test).
@@ -199,6 +206,7 @@ func NewSolver(net *network.Network, opt Options) (*Solver, error) {
 	s.leakP = make([]float64, nn)
 	s.leakY = make([]float64, nn)
 	s.leakGap = make([]float64, nn)
+	s.connClosed = make([]bool, nl)
 	return s, nil
 }
 
@@ -296,7 +304,7 @@ func (s *Solver) lawOpen(k int, q float64, sol *Solution) (h, g, scaled float64)
 			hh, gg := darcyWeisbach(q/1000, m.length, m.diam, m.rel, s.nu)
 			h, g = hh, gg/1000
 		} else {
-			t := m.hwR * math.Pow(aq, hwFlowExp-1)
+			t := m.hwR * hwPow(aq)
 			h, g = t*q, hwFlowExp*t
 		}
 		h += m.minor * q * aq
