@@ -66,7 +66,9 @@ type Config struct {
 	// Routes are tried in order; the first whose match fits takes the alert.
 	Routes []Route `yaml:"routes"`
 	// HourlyCap is the most notifications one person gets in any hour
-	// (default 10); the overflow is summarised in one message.
+	// (default 10); the overflow is summarised in one message. News of an
+	// urgent alert (raised, made urgent, escalated, unshelved, handed
+	// over) is sent over the cap; see pressing.
 	HourlyCap int `yaml:"hourly_cap"`
 	// Feeds are channels that get every alert change regardless of
 	// routing (default: log, and mqtt when configured).

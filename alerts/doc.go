@@ -25,6 +25,17 @@
 // gets at most hourly_cap notifications in any hour; the overflow is held
 // and sent as one summary when the window allows.
 //
+// The cap never delays news of an urgent alert: a notice that an urgent
+// alert was raised (or raised again), became urgent, was escalated,
+// came back from the shelf or was handed over at a rota change is sent
+// at once even over the cap (it counts in the window, and is logged as a
+// warning), and goes to the front of its channel's outbox, ahead of
+// lower-priority messages waiting there (behind at most the one being
+// sent); a full outbox (outbox_limit) drops other notifications, never
+// these. Reminders of an urgent alert (repeated) and every notice of a
+// high or low alert are capped and queued as usual: the cap is there so
+// that a flood of small things cannot bury the big one.
+//
 // # Delivery
 //
 // Every notification is written to a durable outbox (bbolt, under

@@ -115,6 +115,9 @@ func Open(opts Options) (*Manager, error) {
 		m.rotas[cfg.Rotas[i].ID] = &m.cfg.Rotas[i]
 	}
 	for _, c := range opts.Channels {
+		if strings.HasPrefix(c.Name(), urgentPrefix) || strings.ContainsRune(c.Name(), 0) {
+			return nil, fmt.Errorf("alerts: channel name %q: must not start with %q or hold a NUL (outbox keys)", c.Name(), urgentPrefix)
+		}
 		if _, dup := m.channels[c.Name()]; dup {
 			return nil, fmt.Errorf("alerts: two channels named %q", c.Name())
 		}
@@ -427,7 +430,8 @@ func (m *Manager) notifyNotified(b *batch, a *Alert, notice Notice, now time.Tim
 
 // notifyPerson sends one notice to one receiver on each of their
 // channels, unless the hourly cap is reached; then it is held for the
-// summary.
+// summary. A pressing notice (see pressing) is sent over the cap: it
+// counts in the window like any other but is never held.
 func (m *Manager) notifyPerson(b *batch, id string, a *Alert, notice Notice, now time.Time, actor, comment string) {
 	rc, ok := m.receivers[id]
 	if !ok {
@@ -439,9 +443,13 @@ func (m *Manager) notifyPerson(b *batch, id string, a *Alert, notice Notice, now
 		a.Notified = append(a.Notified, id)
 	}
 	if len(ps.Sent) >= m.cfg.HourlyCap {
-		ps.Held = append(ps.Held, Held{Time: now, AlertID: a.ID, Notice: notice, Zone: a.Zone, Kind: a.Kind, Severity: a.Severity})
-		b.people[id] = clonePerson(ps)
-		return
+		if !pressing(a.Severity, notice) {
+			ps.Held = append(ps.Held, Held{Time: now, AlertID: a.ID, Notice: notice, Zone: a.Zone, Kind: a.Kind, Severity: a.Severity})
+			b.people[id] = clonePerson(ps)
+			return
+		}
+		m.log.Warn().Str("receiver", id).Str("alert", a.ID).Str("notice", string(notice)).Int("cap", m.cfg.HourlyCap).
+			Msg("urgent notice sent over the hourly cap")
 	}
 	ps.Sent = append(ps.Sent, now)
 	b.people[id] = clonePerson(ps)
@@ -450,6 +458,26 @@ func (m *Manager) notifyPerson(b *batch, id string, a *Alert, notice Notice, now
 		n.Channel = c
 		b.notes = append(b.notes, n)
 	}
+}
+
+// pressing reports whether a notice of an alert of severity sev must
+// reach its person now, whatever the hourly cap: an urgent alert that is
+// news to them, that is, raised (or raised again), made urgent (its
+// severity rose), escalated to them, back from the shelf, or handed
+// over to them at a rota change. Reminders (repeated) and the notices
+// that need no action (acknowledged, shelved, returned, cleared) are
+// capped as usual, and so is everything of a lower severity: the cap
+// keeps a flood of small things from burying the one big one, and must
+// not delay the big one itself.
+func pressing(sev Severity, notice Notice) bool {
+	if sev != Urgent {
+		return false
+	}
+	switch notice {
+	case NoticeRaised, NoticeUpdated, NoticeEscalated, NoticeUnshelved, NoticeHandover:
+		return true
+	}
+	return false
 }
 
 // contactChannels lists the channels that reach rc (log if none).
@@ -653,16 +681,25 @@ func (m *Manager) summaries(b *batch, now time.Time) {
 
 // commitLocked persists b with whatever an earlier failed commit left,
 // then wakes the dispatchers. Notifications beyond the outbox limit are
-// dropped and counted.
+// dropped and counted, the newest first; pressing ones are kept even
+// over the limit (they are few: news of urgent alerts).
 func (m *Manager) commitLocked(b *batch) error {
 	if room := int64(m.cfg.OutboxLimit) - m.pendingN.Load() - int64(len(m.unsaved.notes)); int64(len(b.notes)) > room {
-		if room < 0 {
-			room = 0
+		keep := b.notes[:0]
+		var drop int64
+		for _, n := range b.notes {
+			if room > 0 || pressing(n.Alert.Severity, n.Notice) {
+				keep = append(keep, n)
+				room--
+				continue
+			}
+			drop++
 		}
-		drop := int64(len(b.notes)) - room
-		m.dropped.Add(drop)
-		m.log.Error().Int64("dropped", drop).Int("limit", m.cfg.OutboxLimit).Msg("outbox full: notifications dropped")
-		b.notes = b.notes[:room]
+		b.notes = keep
+		if drop > 0 {
+			m.dropped.Add(drop)
+			m.log.Error().Int64("dropped", drop).Int("limit", m.cfg.OutboxLimit).Msg("outbox full: notifications dropped")
+		}
 	}
 	m.unsaved.merge(b)
 	if m.unsaved.empty() {

@@ -112,6 +112,25 @@ func outboxKey(channel string, id uint64) []byte {
 	return append([]byte(channel+"\x00"), u64(id)...)
 }
 
+// urgentPrefix starts the outbox keys of pressing notifications: a
+// channel's dispatcher takes those first, in order, before the rest (no
+// channel name starts with "!").
+const urgentPrefix = "!"
+
+// urgentKey is the outbox key of a pressing notification.
+func urgentKey(channel string, id uint64) []byte {
+	return outboxKey(urgentPrefix+channel, id)
+}
+
+// keyOf is n's outbox key: pressing notifications (see pressing) go
+// ahead of the rest of their channel.
+func keyOf(n Notification) []byte {
+	if n.Notice != NoticeSummary && pressing(n.Alert.Severity, n.Notice) {
+		return urgentKey(n.Channel, n.ID)
+	}
+	return outboxKey(n.Channel, n.ID)
+}
+
 // commit writes b in one transaction, numbering its notifications.
 func (s *store) commit(b *batch) error {
 	return s.db.Update(func(tx *bolt.Tx) error {
@@ -157,7 +176,7 @@ func (s *store) commit(b *batch) error {
 			if err != nil {
 				return err
 			}
-			if err := ob.Put(outboxKey(b.notes[i].Channel, seq), v); err != nil {
+			if err := ob.Put(keyOf(b.notes[i]), v); err != nil {
 				return err
 			}
 		}
@@ -241,18 +260,21 @@ func (s *store) auditOf(id string) ([]AuditRecord, error) {
 	return out, err
 }
 
-// next returns the oldest pending notification of channel.
+// next returns the oldest pending pressing notification of channel, or
+// else its oldest pending notification.
 func (s *store) next(channel string) (Notification, bool, error) {
 	var n Notification
 	found := false
-	prefix := []byte(channel + "\x00")
 	err := s.db.View(func(tx *bolt.Tx) error {
-		k, v := tx.Bucket(bucketOutbox).Cursor().Seek(prefix)
-		if k == nil || !bytes.HasPrefix(k, prefix) {
-			return nil
+		c := tx.Bucket(bucketOutbox).Cursor()
+		for _, prefix := range [][]byte{[]byte(urgentPrefix + channel + "\x00"), []byte(channel + "\x00")} {
+			k, v := c.Seek(prefix)
+			if k != nil && bytes.HasPrefix(k, prefix) {
+				found = true
+				return json.Unmarshal(v, &n)
+			}
 		}
-		found = true
-		return json.Unmarshal(v, &n)
+		return nil
 	})
 	if err != nil {
 		return n, false, fmt.Errorf("alerts: outbox %s: %w", channel, err)
@@ -264,7 +286,13 @@ func (s *store) next(channel string) (Notification, bool, error) {
 // log, in one transaction.
 func (s *store) done(n Notification, rec DeliveryRecord) error {
 	return s.db.Update(func(tx *bolt.Tx) error {
-		if err := tx.Bucket(bucketOutbox).Delete(outboxKey(n.Channel, n.ID)); err != nil {
+		// Under either key: a store written before pressing
+		// notifications went first holds them under the plain one.
+		ob := tx.Bucket(bucketOutbox)
+		if err := ob.Delete(outboxKey(n.Channel, n.ID)); err != nil {
+			return err
+		}
+		if err := ob.Delete(urgentKey(n.Channel, n.ID)); err != nil {
 			return err
 		}
 		db := tx.Bucket(bucketDeliveries)
