@@ -38,6 +38,8 @@ type replayResult struct {
 type replayOptions struct {
 	configPath, from, to, src, run string
 	noStore                        bool
+	// trace receives the detector's decisions (--trace), or nil.
+	trace io.Writer
 }
 
 func (o *replayOptions) register(fs interface {
@@ -63,8 +65,12 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	quiet := fs.Bool("quiet", false, "no progress line on stderr")
 	reportOut := fs.String("report", "", "also write the retrospective report (HTML, with .json and .csv beside it)")
 	cpuProfile := fs.String("cpuprofile", "", "write a CPU profile of the replay to this file (for go tool pprof)")
+	trace := fs.Bool("trace", false, "write the detector's decisions (alarms, hypotheses and their misfits) to stderr")
 	if err := parseFlags(fs, args); err != nil {
 		return err
+	}
+	if *trace {
+		o.trace = stderr
 	}
 	if *cpuProfile != "" {
 		f, err := os.Create(*cpuProfile)
@@ -181,6 +187,10 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	pr := newProgress(progress, from, to)
 	popt := pipeline.Options{Config: cfg, Run: o.run, Store: sink, Start: from, Context: ctx}
 	popt.OnStep = onStep
+	if o.trace != nil {
+		w := o.trace
+		popt.Detector.Trace = func(line string) { fmt.Fprintln(w, "trace:", line) }
+	}
 	p, err := pipeline.New(popt)
 	if err != nil {
 		return nil, err

@@ -47,6 +47,11 @@ type Config struct {
 	// Noise holds optional per-sensor noise floors from calibration (σ of
 	// the model residual, canonical units), by sensor id.
 	Noise map[string]float64
+	// Trace, when set, receives one line per decision the detector takes
+	// (an alarm, each hypothesis's best misfit, the explanation chosen or
+	// why none was): the diagnostic an engineer reads to see why a change
+	// was or was not raised. Nil costs nothing.
+	Trace func(line string)
 }
 
 func (c *Config) defaults() {

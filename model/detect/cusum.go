@@ -104,3 +104,70 @@ func DesignCUSUM(delta, arl0 float64) (*CUSUM, error) {
 	}
 	return NewCUSUM(k, (lo+hi)/2), nil
 }
+
+// Serial follows the lag-1 autocorrelation ρ of an hourly normalised
+// series and turns the series into its innovations,
+//
+//	e_t = (z_t − ρ·z_{t−1}) / √(1 − ρ²),
+//
+// which are independent with unit variance when z is a first-order
+// autoregressive process: a CUSUM designed for independent observations
+// keeps its average run length on e, where on z itself a run of busy
+// hours (positively correlated noise) would add up to a false alarm.
+// This is the residual chart for autocorrelated data of Alwan & Roberts
+// (1988); a sudden shift of μ shows in full in the first innovation
+// (μ/√(1−ρ²)) and by √((1−ρ)/(1+ρ))·μ in each one after.
+//
+// ρ is the exponentially weighted ratio Σ z_t z_{t−1} / Σ z_{t−1}² over
+// the pairs of consecutive hours that Learn is given (quiet hours only),
+// taken as 0 until 48 pairs are in and kept within [0, 0.9]: negative
+// correlation makes the raw CUSUM conservative already, and beyond 0.9
+// the series is too slow for hourly innovations to mean much.
+type Serial struct {
+	Prev   float64
+	PrevAt time.Time
+	XY, XX float64
+	N      int
+}
+
+// serialMemory is how many hourly pairs Serial remembers (a fortnight).
+const serialMemory = 14 * 24
+
+// Rho returns the current lag-1 autocorrelation estimate.
+func (s *Serial) Rho() float64 {
+	if s.N < 48 || s.XX <= 0 {
+		return 0
+	}
+	return math.Min(0.9, math.Max(0, s.XY/s.XX))
+}
+
+// prev returns the value of the hour before t, if there was one.
+func (s *Serial) prev(t time.Time) (float64, bool) {
+	ok := !s.PrevAt.IsZero() && t.Sub(s.PrevAt) == time.Hour && !math.IsNaN(s.Prev)
+	return s.Prev, ok
+}
+
+// Innovation returns e_t for the value z of hour t (z itself when the
+// hour before has no value) and remembers z as the previous value.
+func (s *Serial) Innovation(t time.Time, z float64) float64 {
+	e := z
+	if p, ok := s.prev(t); ok {
+		rho := s.Rho()
+		e = (z - rho*p) / math.Sqrt(1-rho*rho)
+	}
+	return e
+}
+
+// Learn adds the pair (previous hour, z) to the estimate of ρ when the
+// hour before t had a value, and then remembers z for the next hour.
+// Call it once per hour, after Innovation, with learn false for hours
+// that must not teach the estimate (a change under way).
+func (s *Serial) Learn(t time.Time, z float64, learn bool) {
+	if p, ok := s.prev(t); ok && learn && !math.IsNaN(z) {
+		s.N++
+		w := 1 / float64(min(s.N, serialMemory))
+		s.XY += w * (z*p - s.XY)
+		s.XX += w * (p*p - s.XX)
+	}
+	s.Prev, s.PrevAt = z, t
+}

@@ -114,6 +114,8 @@ type acc struct {
 type sensorState struct {
 	Base     Baseline
 	Up, Down CUSUM
+	// Serial whitens the residual tests' hourly values (Serial).
+	Serial   Serial
 	Ring     ring
 	Excluded bool
 	// Unchanged is how long the sensor's value has not moved, for the
@@ -139,6 +141,8 @@ type zoneState struct {
 	LevelN       int
 	Jump         Baseline
 	Burst, Night CUSUM
+	// JumpSerial whitens the burst test's hourly jumps (Serial).
+	JumpSerial Serial
 	// Repair watches the night imbalance falling back: a leak mended.
 	Repair     CUSUM
 	Ring       ring
@@ -858,9 +862,12 @@ func (d *Detector) closeHour(h time.Time) {
 			jump := rel - zs.Level
 			if zs.LevelN >= 6 && zs.Jump.NVar >= 24 {
 				sigma := zs.Jump.SigmaAt(hr)
-				if zs.Burst.Update(h, jump/sigma) {
+				z := jump / sigma
+				e := zs.JumpSerial.Innovation(h, z)
+				if zs.Burst.Update(h, e) {
 					alarms = append(alarms, alarm{zone: zi, sensor: -1, onset: zs.Burst.Onset, sigma: sigma * scale, size: zs.Level * scale})
 				}
+				zs.JumpSerial.Learn(h, z, zs.Burst.S < zs.Burst.H/2)
 			}
 			if zs.Burst.S < zs.Burst.H/2 && zs.LevelN > 0 {
 				zs.Jump.Update(hr, jump)
@@ -917,8 +924,10 @@ func (d *Detector) closeHour(h time.Time) {
 		}
 		ss.Ring.push(h, dev)
 		z := dev / ss.Base.SigmaAt(hr)
-		up := ss.Up.Update(h, z)
-		down := ss.Down.Update(h, -z)
+		e := ss.Serial.Innovation(h, z)
+		up := ss.Up.Update(h, e)
+		down := ss.Down.Update(h, -e)
+		ss.Serial.Learn(h, z, ss.Up.S < ss.Up.H/2 && ss.Down.S < ss.Down.H/2)
 		if (up || down) && info.zone >= 0 {
 			onset := ss.Up.Onset
 			if down {

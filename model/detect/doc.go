@@ -29,7 +29,11 @@
 // (a step of 5σ), and a two-sided residual test per logger (a step of 2σ).
 // Their reference k and threshold h come from the wanted time between
 // false alarms (Config.FalseAlarmDays) through Siegmund's approximation of
-// the average run length (DesignCUSUM). Normal levels and scatter are
+// the average run length (DesignCUSUM). That design assumes independent
+// observations; hourly demand noise is not (a busy morning is busy for
+// hours), so the burst and residual tests are fed the innovations of a
+// first-order autoregression learnt from quiet hours (Serial; Alwan &
+// Roberts 1988) instead of the raw hourly values. Normal levels and scatter are
 // learnt per hour of day (Baseline) over the first LearnNights days, then
 // followed slowly; nights are judged against the mean and scatter of up to
 // 28 past quiet nights, widened for their small number (Student 1908).

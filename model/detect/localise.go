@@ -99,13 +99,13 @@ func (d *Detector) refConditions(ev evidence) hydraulic.Conditions {
 // and returns every logger's head change from the reference solution.
 // One scratch demand vector serves every call.
 type responses struct {
-	d       *Detector
-	sg      *signatures
-	ev      evidence
-	demand  []float64
-	factor  []float64
-	link    int
-	solves  int
+	d      *Detector
+	sg     *signatures
+	ev     evidence
+	demand []float64
+	factor []float64
+	link   int
+	solves int
 }
 
 func (d *Detector) responses(ev evidence, sg *signatures) *responses {
@@ -553,6 +553,10 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		r := ev.dr[k] + size*sg.ubar[k]
 		meterSSE += ev.w[k] * r * r
 	}
+	if d.cfg.Trace != nil {
+		d.tracef("%s zone %s: %s (onset %s); leak %s; meter-error misfit %.1f; %d loggers",
+			now.UTC().Format(time.RFC3339), zone, why, onset.UTC().Format(time.RFC3339), d.traceBest(top, 0, false), meterSSE, len(ev.sensors))
+	}
 	// A meter error must explain the residuals clearly better than the best
 	// leak (by more than the 2 units of SSE one parameter may buy, Akaike
 	// 1974) before the finding blames the instrument.
@@ -662,6 +666,11 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	bTop, bScores, lTop, lScores := hy.blocks, hy.blockScores, hy.leaks, hy.leakScores
 	bestB, bestL := hy.bestBlockage, hy.bestLeak
 	desc := describeResiduals(d, ev, 3)
+	if d.cfg.Trace != nil {
+		d.tracef("%s residual alarm on %s (onset %s): moved %+.3f m (accuracy %.3f); sensor-fault misfit %.1f; blockage %s; leak %s; balance %+.2f L/s (%.1fσ); %d loggers",
+			now.UTC().Format(time.RFC3339), d.sens[si].s.ID, onset.UTC().Format(time.RFC3339), ev.dr[me], d.sens[si].accuracy, faultSSE,
+			d.traceBest(bTop, bestB, true), d.traceBest(lTop, bestL, false), ev.dI, ev.dI*math.Sqrt(ev.wI), len(ev.sensors))
+	}
 	switch {
 	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:
 		// A logger that moved by less than its own stated accuracy is not
@@ -818,6 +827,30 @@ func describeResiduals(d *Detector, ev evidence, n int) string {
 		return "no loggers"
 	}
 	return strings.Join(parts, ", ")
+}
+
+// tracef sends one decision line to Config.Trace.
+func (d *Detector) tracef(format string, args ...any) {
+	if d.cfg.Trace != nil {
+		d.cfg.Trace(fmt.Sprintf(format, args...))
+	}
+}
+
+// traceBest describes the best of a ranked list for the trace: its place,
+// size and misfit, or why the kind was not in the running (best = +Inf).
+func (d *Detector) traceBest(top []ranked, best float64, link bool) string {
+	if len(top) == 0 {
+		return "not considered"
+	}
+	id := d.net.Nodes[top[0].idx].ID
+	if link {
+		id = d.net.Links[top[0].idx].ID
+	}
+	s := fmt.Sprintf("%s (size %.3g) misfit %.1f", id, top[0].size, top[0].sse)
+	if math.IsInf(best, 1) {
+		s += " (not eligible)"
+	}
+	return s
 }
 
 func round2(x float64) float64 { return math.Round(x*100) / 100 }
