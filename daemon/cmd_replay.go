@@ -12,11 +12,13 @@ import (
 
 	"plumbline/daemon/config"
 	"plumbline/daemon/pipeline"
+	"plumbline/daemon/report"
 	"plumbline/daemon/service"
 	"plumbline/ingest/readfile"
 	"plumbline/model/calib"
 	"plumbline/model/detect"
 	"plumbline/model/finding"
+	"plumbline/model/network"
 	"plumbline/model/telemetry"
 )
 
@@ -123,20 +125,11 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 			best = f.Candidates[0].ID
 		}
 		fmt.Fprintf(stdout, "  %-12s zone %-10s raised %s  onset %s  best %-10s %s\n", f.Kind, f.Zone,
-			f.Raised.Format("2006-01-02 15:04"), f.Onset.Format("2006-01-02 15:04"), best, sizeText(f))
+			f.Raised.Format("2006-01-02 15:04"), f.Onset.Format("2006-01-02 15:04"), best, report.SizeText(f))
 	}
 	return nil
 }
 
-func sizeText(f finding.Finding) string {
-	switch f.Kind {
-	case finding.Leak:
-		return fmt.Sprintf("%.2f L/s", f.SizeLPS)
-	case finding.Blockage:
-		return fmt.Sprintf("about %.0f%% open", 100*f.OpenFrac)
-	}
-	return ""
-}
 
 // replay runs the pipeline over a period. onStep, when set, sees every
 // step (the report uses it).
@@ -145,6 +138,7 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	if err != nil {
 		return nil, err
 	}
+	shareNames(cfg.Network)
 	var from, to time.Time
 	if o.from != "" {
 		if from, err = time.Parse(time.RFC3339, o.from); err != nil {
@@ -272,4 +266,29 @@ func writeFindings(path string, fs []finding.Finding) error {
 		return fmt.Errorf("findings: %w", err)
 	}
 	return nil
+}
+
+// shareNames makes the junctions' pattern and zone names share one copy
+// of each distinct name. The values do not change; what changes is that
+// comparing two equal names no longer reads their bytes: the detector
+// looks both up for every junction at every step (demand.Base), and
+// with a copy per junction, as the network file's decoder leaves them,
+// those reads are scattered over the heap and miss the cache. Called
+// before the network is shared with anything else.
+func shareNames(net *network.Network) {
+	if net == nil {
+		return
+	}
+	seen := map[string]string{}
+	one := func(s string) string {
+		if c, ok := seen[s]; ok {
+			return c
+		}
+		seen[s] = s
+		return s
+	}
+	for i := range net.Nodes {
+		n := &net.Nodes[i]
+		n.Pattern, n.Zone = one(n.Pattern), one(n.Zone)
+	}
 }

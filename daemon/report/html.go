@@ -123,7 +123,7 @@ func (r *Report) WriteHTML(w io.Writer) (int, error) {
 	for _, f := range r.Summary.Findings {
 		pg.Findings = append(pg.Findings, findingRow{Label: f.Label, Kind: string(f.Kind), Zone: f.Zone,
 			Onset: f.Onset.UTC().Format("2006-01-02 15:04"), Raised: f.Raised.UTC().Format("2006-01-02 15:04"),
-			Size: sizeText(f.Finding), Volume: optf(f.VolumeLostM3, "%.0f"), Candidates: candText(f.Finding), Evidence: f.Evidence})
+			Size: SizeText(f.Finding), Volume: optf(f.VolumeLostM3, "%.0f"), Candidates: candText(f.Finding), Evidence: f.Evidence})
 	}
 	var buf bytes.Buffer
 	if err := pageTmpl.Execute(&buf, pg); err != nil {
@@ -133,11 +133,17 @@ func (r *Report) WriteHTML(w io.Writer) (int, error) {
 	return n, err
 }
 
-func sizeText(f finding.Finding) string {
+// SizeText is a finding's size in words: a leak's flow, a blockage's
+// open fraction (or that it was not estimated: a zone-wide loss of
+// pressure gives none), "-" for other kinds.
+func SizeText(f finding.Finding) string {
 	switch f.Kind {
 	case finding.Leak:
 		return fmt.Sprintf("%.2f L/s", f.SizeLPS)
 	case finding.Blockage:
+		if f.OpenFrac <= 0 {
+			return "open fraction not estimated"
+		}
 		return fmt.Sprintf("about %.0f%% open", 100*f.OpenFrac)
 	}
 	return "-"

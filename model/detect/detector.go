@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sort"
 	"time"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -161,6 +162,11 @@ type zoneState struct {
 	LeakQuiet    time.Time
 	ResidQuiet   time.Time
 	NightLearned int
+	// Storm counts the consecutive steps in which most of the zone's
+	// loggers read out of range together (pressureLoss); StormAt is when
+	// the last such event was raised.
+	Storm   int
+	StormAt time.Time
 	// Scale is the hourly mean of the zone's inflow-matched demand over
 	// its base demand: the operating point of each hour of evidence.
 	Scale ring
@@ -560,8 +566,13 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	copy(d.cond.Demand, d.base)
 	var modelLeak []float64
 	if d.leaky {
-		exp, err := d.solver.Solve(&d.cond, d.prevExp)
+		// Solved into the previous step's solution, its warm start: the
+		// same numbers as a fresh Solution, without 0.6 MB a step
+		// (5,000 junctions) to collect. After an error that memory holds
+		// no solution, so the next step starts cold.
+		exp, err := d.solver.SolveInto(&d.cond, d.prevExp, d.prevExp)
 		if err != nil {
+			d.prevExp = nil
 			return nil, fmt.Errorf("detector at %s: expected-consumption solve: %w", t.Format(time.RFC3339), err)
 		}
 		d.prevExp = exp
@@ -617,8 +628,9 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 			d.cond.Demand[i] = d.base[i] * mult[zi]
 		}
 	}
-	mat, err := d.solver.Solve(&d.cond, d.prevMat)
+	mat, err := d.solver.SolveInto(&d.cond, d.prevMat, d.prevMat)
 	if err != nil {
+		d.prevMat = nil
 		return nil, fmt.Errorf("detector at %s: inflow-matched solve: %w", t.Format(time.RFC3339), err)
 	}
 	d.prevMat = mat
@@ -969,9 +981,13 @@ func (d *Detector) closeHour(h time.Time) {
 // three spikes within a day, or an hour out of range.
 func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 	day := int(24 * time.Hour / d.cfg.Step)
+	storm := d.pressureLoss(snap)
 	for si := range d.sens {
 		ss := &d.st.Sensors[si]
 		a := snap.Values[si]
+		if zi := d.sens[si].zone; zi >= 0 && storm[zi] && a.Quality == telemetry.OutOfRange && d.sens[si].evidence {
+			continue // the zone lost pressure: the instrument is telling the truth
+		}
 		if ss.Excluded {
 			// A flow meter or level sensor (no residual of its own) comes
 			// back after a day of readings that ingest finds plausible.
@@ -1025,6 +1041,141 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 		}
 		d.faultFinding(si, snap.Step.Add(-max(ss.Unchanged, time.Duration(ss.BadSteps)*d.cfg.Step)), snap.Step, reason)
 	}
+}
+
+// pressureLoss finds the zones in which most loggers read out of range
+// at once — at least three, and at least half of those in use. One
+// instrument failing is a sensor fault; a whole zone's failing together
+// is the water telling the truth: pressure was lost (a main shut or
+// collapsed, or a burst too large for the supply). It returns which
+// zones are in that state this step and, after an hour of it, raises
+// one finding per event for the zone that is not merely downstream of
+// another zone in the same state: a leak when the zone balance shows
+// the water going (the inflow far above expected), otherwise a blockage
+// on the zone's supply, the links that carried most of its water in the
+// last inflow-matched solve ranked first.
+func (d *Detector) pressureLoss(snap telemetry.Snapshot) []bool {
+	storm := make([]bool, len(d.zones))
+	for zi := range d.zones {
+		out, inUse := 0, 0
+		for _, si := range d.zones[zi].evidence {
+			if d.st.Sensors[si].Excluded {
+				continue
+			}
+			inUse++
+			if snap.Values[si].Quality == telemetry.OutOfRange {
+				out++
+			}
+		}
+		storm[zi] = out >= 3 && 2*out >= inUse
+		zs := &d.st.Zones[zi]
+		if !storm[zi] {
+			zs.Storm = 0
+			continue
+		}
+		zs.Storm++
+	}
+	for zi := range d.zones {
+		zs := &d.st.Zones[zi]
+		if !storm[zi] || time.Duration(zs.Storm)*d.cfg.Step != time.Hour {
+			continue
+		}
+		if !zs.StormAt.IsZero() && snap.Step.Sub(zs.StormAt) < 24*time.Hour {
+			continue
+		}
+		if up := d.upstreamZone(zi); up >= 0 && storm[up] {
+			continue // the zone feeding this one lost pressure too: its finding covers both
+		}
+		zs.StormAt = snap.Step
+		d.lossFinding(zi, snap)
+	}
+	return storm
+}
+
+// upstreamZone returns a zone one of whose outlet meters is an inlet of
+// zone zi (the zone that feeds it), or -1.
+func (d *Detector) upstreamZone(zi int) int {
+	for _, in := range d.zones[zi].inlets {
+		for zj := range d.zones {
+			for _, out := range d.zones[zj].outlets {
+				if zj != zi && out.sensor == in.sensor {
+					return zj
+				}
+			}
+		}
+	}
+	return -1
+}
+
+// lossFinding raises the finding of a zone-wide loss of pressure.
+func (d *Detector) lossFinding(zi int, snap telemetry.Snapshot) {
+	zone := d.zones[zi].z.ID
+	onset := snap.Step.Add(-time.Hour + d.cfg.Step)
+	n, lowest := 0, math.Inf(1)
+	for _, si := range d.zones[zi].evidence {
+		if a := snap.Values[si]; a.Quality == telemetry.OutOfRange {
+			n++
+			if a.Count > 0 && !math.IsNaN(a.Value) {
+				lowest = math.Min(lowest, a.Value)
+			}
+		}
+	}
+	inflow, ok := d.zoneInflow(zi, snap)
+	expected := 0.0
+	for _, j := range d.zones[zi].junctions {
+		if d.base != nil {
+			expected += d.base[j]
+		}
+	}
+	sigma := d.st.Zones[zi].Base.Sigma()
+	what := fmt.Sprintf("pressure at %d of %d loggers in zone %s left the instruments' range together for an hour", n, len(d.zones[zi].evidence), zone)
+	if !math.IsInf(lowest, 1) {
+		what += fmt.Sprintf(" (lowest %.1f m)", lowest)
+	}
+	if ok && inflow-expected > 3*sigma && inflow-expected > 0 {
+		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: snap.Step, SizeLPS: round2(inflow - expected),
+			Evidence: fmt.Sprintf("%s while zone inflow read %.1f L/s against %.1f expected: a burst too large for the supply; the loggers are not faulty", what, inflow, expected)}
+		d.raise(f)
+		return
+	}
+	// The supply's links: those touching the zone, by the flow they
+	// carried before the event.
+	type carried struct {
+		link int
+		q    float64
+	}
+	var links []carried
+	total := 0.0
+	for l, lk := range d.net.Links {
+		if d.nodeZone[lk.From] != zi && d.nodeZone[lk.To] != zi {
+			continue
+		}
+		q := 0.0
+		if d.prevMat != nil {
+			q = math.Abs(d.prevMat.Flow[l])
+		}
+		links = append(links, carried{l, q})
+		total = math.Max(total, q)
+	}
+	sort.SliceStable(links, func(a, b int) bool { return links[a].q > links[b].q })
+	f := finding.Finding{Kind: finding.Blockage, Zone: zone, Onset: onset, Raised: snap.Step, Candidates: []finding.Candidate{}}
+	for _, c := range links[:min(d.cfg.Candidates, len(links))] {
+		score := 0.0
+		if total > 0 {
+			score = c.q / total
+		}
+		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Links[c.link].ID, Score: round2(score)})
+	}
+	in := "unmetered"
+	if ok {
+		in = fmt.Sprintf("%.1f L/s against %.1f expected", inflow, expected)
+	}
+	best := "-"
+	if len(f.Candidates) > 0 {
+		best = f.Candidates[0].ID
+	}
+	f.Evidence = fmt.Sprintf("%s while zone inflow read %s: the zone's supply is constricted (a valve shut or a main collapsed) and the loggers are not faulty; check first the links that carried most of its water, %s", what, in, best)
+	d.raise(f)
 }
 
 func (d *Detector) faultFinding(si int, onset, now time.Time, why string) {

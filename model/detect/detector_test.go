@@ -294,3 +294,52 @@ func TestRepairedLeakResolves(t *testing.T) {
 		t.Errorf("extra finding %+v", f)
 	}
 }
+
+// The grid town's only supply main nearly shut: every logger's pressure
+// falls below zero and ingest flags each reading out of range (range
+// 0–100 m, as ingest's check would). One instrument out of range is a
+// sensor fault; all of them together are the water telling the truth.
+// By hand the answer is the one supply link, P-in: a blockage there, and
+// no sensor fault.
+func TestZoneWidePressureLossIsASupplyBlockage(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(8*24*time.Hour + 8*time.Hour)
+	snaps := simulate(t, net, 9, 5, []sim.Event{{Kind: finding.Blockage, At: "P-in", Start: start, OpenFraction: 0.02}})
+	sensors := gridSensors()
+	flagged := 0
+	for k := range snaps {
+		for i, a := range snaps[k].Values {
+			if sensors[i].Quantity == telemetry.Pressure && a.Count > 0 && (a.Value < 0 || a.Value > 100) {
+				snaps[k].Values[i].Quality = telemetry.OutOfRange
+				flagged++
+			}
+		}
+	}
+	if flagged == 0 {
+		t.Fatal("no reading left the range: the closure is too mild for this test")
+	}
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	var blockages int
+	for _, f := range fs {
+		t.Logf("%s %s %v: %s", f.Kind, f.Raised.Format(time.RFC3339), f.Candidates, f.Evidence)
+		switch f.Kind {
+		case finding.SensorFault:
+			t.Errorf("a sensor fault raised for a zone-wide loss of pressure: %+v", f)
+		case finding.Blockage:
+			blockages++
+			if len(f.Candidates) == 0 || f.Candidates[0].ID != "P-in" {
+				t.Errorf("blockage candidates %+v, want P-in first", f.Candidates)
+			}
+			if f.Raised.Before(start) || f.Raised.After(start.Add(2*time.Hour)) {
+				t.Errorf("raised %s, want within 2 h of %s", f.Raised, start)
+			}
+		}
+	}
+	if blockages != 1 {
+		t.Errorf("%d blockage findings, want exactly 1", blockages)
+	}
+}
