@@ -130,7 +130,6 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) err
 	return nil
 }
 
-
 // replay runs the pipeline over a period. onStep, when set, sees every
 // step (the report uses it).
 func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep func(telemetry.Snapshot, *detect.StepResult) error) (*replayResult, error) {
