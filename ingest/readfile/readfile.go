@@ -3,7 +3,6 @@ package readfile
 import (
 	"bufio"
 	"bytes"
-	"container/heap"
 	"context"
 	"encoding/csv"
 	"errors"
@@ -12,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -114,6 +114,16 @@ type File struct {
 	last    Stats
 }
 
+// sensorEntry is a configured sensor with the unit its readings came in
+// last and that unit's conversion (units.Lookup once per sensor and
+// spelling, not per reading).
+type sensorEntry struct {
+	s    telemetry.Sensor
+	unit string
+	conv units.Unit
+	have bool
+}
+
 // Open checks that path can be read and returns the file's reader.
 func Open(path string, opt Options) (*File, error) {
 	if opt.ReorderWindow <= 0 {
@@ -154,6 +164,12 @@ func (f *File) Read(ctx context.Context, from, to time.Time, sensors []string, f
 	}
 	name := f.path
 	rd := newReader(name, f.opt, f.sensors)
+	if f.sensors != nil {
+		rd.entries = make(map[string]*sensorEntry, len(f.sensors))
+		for id, s := range f.sensors {
+			rd.entries[id] = &sensorEntry{s: s}
+		}
+	}
 	want := source.SensorSet(sensors)
 	rd.keep = func(r telemetry.Reading) bool {
 		return want(r.Sensor) && !r.Time.Before(from) && r.Time.Before(to)
@@ -187,8 +203,11 @@ type reader struct {
 	keep    func(telemetry.Reading) bool
 	stats   Stats
 	errs    []*LineError
+	// entries are the sensors with their last unit's conversion (nil
+	// when sensors is nil; built on first use otherwise).
+	entries map[string]*sensorEntry
 
-	buf      readingHeap
+	buf      orderBuffer
 	seq      int
 	maxSeen  time.Time
 	last     telemetry.Reading // last delivered
@@ -287,20 +306,31 @@ func (rd *reader) accept(line int, r telemetry.Reading, quality string, fn func(
 		return nil
 	}
 	if rd.sensors != nil {
-		s, ok := rd.sensors[r.Sensor]
+		if rd.entries == nil {
+			rd.entries = make(map[string]*sensorEntry, len(rd.sensors))
+			for id, s := range rd.sensors {
+				rd.entries[id] = &sensorEntry{s: s}
+			}
+		}
+		e, ok := rd.entries[r.Sensor]
 		if !ok {
 			rd.stats.Unknown++
 			return nil
 		}
+		s := &e.s
+		r.Sensor = s.ID // the configured string, not a piece of the line
 		if r.Unit == "" {
 			r.Unit = s.Unit
 		}
-		v, err := units.ToCanonical(s.Quantity, r.Unit, r.Value)
-		if err != nil {
-			rd.bad(line, fmt.Errorf("sensor %s: %w", r.Sensor, err))
-			return nil
+		if !e.have || e.unit != r.Unit {
+			u, err := units.Lookup(s.Quantity, r.Unit)
+			if err != nil {
+				rd.bad(line, fmt.Errorf("sensor %s: %w", r.Sensor, err))
+				return nil
+			}
+			e.unit, e.conv, e.have = r.Unit, u, true
 		}
-		r.Value = v
+		r.Value = e.conv.ToCanonical(r.Value)
 	}
 	if !rd.keep(r) {
 		return nil
@@ -311,7 +341,7 @@ func (rd *reader) accept(line int, r telemetry.Reading, quality string, fn func(
 		return nil
 	}
 	rd.seq++
-	heap.Push(&rd.buf, item{r: r, seq: rd.seq})
+	rd.buf.push(newItem(r, rd.seq))
 	if r.Time.After(rd.maxSeen) {
 		rd.maxSeen = r.Time
 	}
@@ -320,15 +350,15 @@ func (rd *reader) accept(line int, r telemetry.Reading, quality string, fn func(
 
 // flush delivers buffered readings older than before (all when final).
 func (rd *reader) flush(before time.Time, fn func(telemetry.Reading) error, final bool) error {
-	for rd.buf.Len() > 0 {
-		top := rd.buf[0]
+	for rd.buf.len() > 0 {
+		top := rd.buf.min()
 		if !final && !top.r.Time.Before(before) {
 			return nil
 		}
-		it := heap.Pop(&rd.buf).(item)
+		it := rd.buf.pop()
 		// Same sensor and time again in the buffer: the later line wins.
-		for rd.buf.Len() > 0 && rd.buf[0].r.Sensor == it.r.Sensor && rd.buf[0].r.Time.Equal(it.r.Time) {
-			it = heap.Pop(&rd.buf).(item)
+		for rd.buf.len() > 0 && rd.buf.min().r.Sensor == it.r.Sensor && rd.buf.min().r.Time.Equal(it.r.Time) {
+			it = rd.buf.pop()
 			rd.stats.Duplicates++
 		}
 		if rd.haveLast && rd.last.Sensor == it.r.Sensor && rd.last.Time.Equal(it.r.Time) {
@@ -347,13 +377,19 @@ func (rd *reader) flush(before time.Time, fn func(telemetry.Reading) error, fina
 // csv parses a CSV readings file one line at a time: a field quoted
 // across a line break is a bad line, not a licence to swallow the lines
 // after it (a stray quote in one reading must cost that reading only).
+// A line without a quote character is split at its commas directly,
+// which is what encoding/csv does with such a line (every field
+// unquoted; the leading space it trims is trimmed from every field used
+// anyway); a line with one goes through encoding/csv.
 func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, telemetry.Reading, string) error) error {
 	sc := bufio.NewScanner(br)
 	sc.Buffer(make([]byte, 64*1024), 1<<20)
 	col := map[string]int{}
+	var cols csvColumns
 	headerLine := 0
 	line := 0
 	var lr strings.Reader
+	var fields []string
 	for sc.Scan() {
 		line++
 		rd.stats.Lines = line
@@ -361,14 +397,21 @@ func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, tele
 		if t := strings.TrimSpace(text); t == "" || strings.HasPrefix(t, "#") {
 			continue
 		}
-		lr.Reset(text)
-		cr := csv.NewReader(&lr)
-		cr.FieldsPerRecord = -1
-		cr.TrimLeadingSpace = true
-		rec, err := cr.Read()
-		if err == nil {
-			if _, err2 := cr.Read(); err2 != io.EOF {
-				err = errors.New("a quoted field runs past the end of the line")
+		var rec []string
+		var err error
+		if strings.IndexByte(text, '"') < 0 {
+			fields = splitCommas(text, fields)
+			rec = fields
+		} else {
+			lr.Reset(text)
+			cr := csv.NewReader(&lr)
+			cr.FieldsPerRecord = -1
+			cr.TrimLeadingSpace = true
+			rec, err = cr.Read()
+			if err == nil {
+				if _, err2 := cr.Read(); err2 != io.EOF {
+					err = errors.New("a quoted field runs past the end of the line")
+				}
 			}
 		}
 		if headerLine == 0 {
@@ -378,6 +421,7 @@ func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, tele
 			if err := parseHeader(rec, col); err != nil {
 				return errStop{fmt.Errorf("%s:%d: header: %w", rd.name, line, err)}
 			}
+			cols = columnsOf(col)
 			headerLine = line
 			continue
 		}
@@ -390,7 +434,7 @@ func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, tele
 				return errStop{err}
 			}
 		}
-		r, quality, err := csvRecord(rec, col)
+		r, quality, err := csvRecord(rec, &cols)
 		if err != nil {
 			rd.bad(line, err)
 			continue
@@ -406,6 +450,20 @@ func (rd *reader) csv(ctx context.Context, br *bufio.Reader, emit func(int, tele
 		return errStop{fmt.Errorf("%s: no CSV header (want time,sensor,value,unit)", rd.name)}
 	}
 	return nil
+}
+
+// splitCommas splits a line without quote characters at its commas into
+// dst (reused).
+func splitCommas(text string, dst []string) []string {
+	dst = dst[:0]
+	for {
+		i := strings.IndexByte(text, ',')
+		if i < 0 {
+			return append(dst, text)
+		}
+		dst = append(dst, text[:i])
+		text = text[i+1:]
+	}
 }
 
 // lineCounter counts the lines passing through it.
@@ -466,39 +524,97 @@ func parseHeader(rec []string, col map[string]int) error {
 	return nil
 }
 
-func csvRecord(rec []string, col map[string]int) (telemetry.Reading, string, error) {
-	get := func(name string) string {
-		i, ok := col[name]
-		if !ok || i >= len(rec) {
+// csvColumns are the field positions of the header's columns (-1 for
+// one it does not have) and its number of columns.
+type csvColumns struct {
+	time, sensor, value, unit, quality, n int
+}
+
+func columnsOf(col map[string]int) csvColumns {
+	at := func(name string) int {
+		if i, ok := col[name]; ok {
+			return i
+		}
+		return -1
+	}
+	return csvColumns{time: at("time"), sensor: at("sensor"), value: at("value"), unit: at("unit"), quality: at("quality"), n: len(col)}
+}
+
+func csvRecord(rec []string, col *csvColumns) (telemetry.Reading, string, error) {
+	get := func(i int) string {
+		if i < 0 || i >= len(rec) {
 			return ""
 		}
 		return strings.TrimSpace(rec[i])
 	}
 	var r telemetry.Reading
-	if len(rec) < len(col) {
-		return r, "", fmt.Errorf("%d fields, the header has %d", len(rec), len(col))
+	if len(rec) < col.n {
+		return r, "", fmt.Errorf("%d fields, the header has %d", len(rec), col.n)
 	}
-	if len(rec) > len(col) {
-		return r, "", fmt.Errorf("%d fields, the header has %d", len(rec), len(col))
+	if len(rec) > col.n {
+		return r, "", fmt.Errorf("%d fields, the header has %d", len(rec), col.n)
 	}
-	r.Sensor = get("sensor")
+	r.Sensor = get(col.sensor)
 	if r.Sensor == "" {
 		return r, "", errors.New("empty sensor")
 	}
-	ts := get("time")
-	t, err := time.Parse(time.RFC3339Nano, ts)
+	ts := get(col.time)
+	t, err := parseTime(ts)
 	if err != nil {
 		return r, "", fmt.Errorf("sensor %s: time %q is not RFC 3339 (2026-03-02T01:10:00Z)", r.Sensor, ts)
 	}
 	r.Time = t.UTC()
-	vs := get("value")
+	vs := get(col.value)
 	v, err := parseValue(vs)
 	if err != nil {
 		return r, "", fmt.Errorf("sensor %s: value %q: %w", r.Sensor, vs, err)
 	}
 	r.Value = v
-	r.Unit = get("unit")
-	return r, get("quality"), nil
+	r.Unit = get(col.unit)
+	return r, get(col.quality), nil
+}
+
+// parseTime is time.Parse(time.RFC3339Nano, s). The form almost every
+// file uses, whole seconds in UTC (2026-03-02T01:10:00Z), is read
+// directly; anything else, valid or not, goes to time.Parse.
+func parseTime(s string) (time.Time, error) {
+	if t, ok := parseUTCSeconds(s); ok {
+		return t, nil
+	}
+	return time.Parse(time.RFC3339Nano, s)
+}
+
+// parseUTCSeconds reads YYYY-MM-DDTHH:MM:SSZ with a valid date and
+// time; ok is false for anything else (left to time.Parse, which gives
+// the same time for what this accepts).
+func parseUTCSeconds(s string) (time.Time, bool) {
+	if len(s) != 20 || s[4] != '-' || s[7] != '-' || s[10] != 'T' || s[13] != ':' || s[16] != ':' || s[19] != 'Z' {
+		return time.Time{}, false
+	}
+	num := func(a, b int) int {
+		n := 0
+		for i := a; i < b; i++ {
+			c := s[i]
+			if c < '0' || c > '9' {
+				return -1
+			}
+			n = n*10 + int(c-'0')
+		}
+		return n
+	}
+	y, mo, d, h, mi, sec := num(0, 4), num(5, 7), num(8, 10), num(11, 13), num(14, 16), num(17, 19)
+	if y < 1 || mo < 1 || mo > 12 || d < 1 || h < 0 || h > 23 || mi < 0 || mi > 59 || sec < 0 || sec > 59 {
+		return time.Time{}, false
+	}
+	if d > daysIn(time.Month(mo), y) {
+		return time.Time{}, false
+	}
+	return time.Date(y, time.Month(mo), d, h, mi, sec, 0, time.UTC), true
+}
+
+// daysIn is the number of days of month m of year y (Gregorian).
+func daysIn(m time.Month, y int) int {
+	return time.Date(y, m+1, 0, 0, 0, 0, 0, time.UTC).Day()
 }
 
 func parseValue(s string) (float64, error) {
@@ -574,29 +690,167 @@ func (rd *reader) lpRecord(n int, line []byte) (telemetry.Reading, string, bool)
 	return r, p.Tag("quality"), true
 }
 
-// item is a buffered reading; seq keeps file order among equals.
+// item is a buffered reading; seq keeps file order among equals. sec
+// and nsec are its time as Unix seconds and nanoseconds, compared
+// faster than time.Time and in the same order.
 type item struct {
-	r   telemetry.Reading
-	seq int
+	r    telemetry.Reading
+	seq  int
+	sec  int64
+	nsec int32
 }
 
-type readingHeap []item
+func newItem(r telemetry.Reading, seq int) item {
+	return item{r: r, seq: seq, sec: r.Time.Unix(), nsec: int32(r.Time.Nanosecond())}
+}
 
-func (h readingHeap) Len() int { return len(h) }
-func (h readingHeap) Less(i, j int) bool {
-	if source.Less(h[i].r, h[j].r) {
-		return true
+// sameTime reports whether two items have the same time.
+func sameTime(a, b *item) bool { return a.sec == b.sec && a.nsec == b.nsec }
+
+// itemLess orders buffered readings as Read delivers them (by time, then
+// sensor id: source.Less), and in file order among readings of the same
+// sensor and time.
+func itemLess(a, b *item) bool {
+	if a.sec != b.sec {
+		return a.sec < b.sec
 	}
-	if source.Less(h[j].r, h[i].r) {
+	if a.nsec != b.nsec {
+		return a.nsec < b.nsec
+	}
+	if a.r.Sensor != b.r.Sensor {
+		return a.r.Sensor < b.r.Sensor
+	}
+	return a.seq < b.seq
+}
+
+func itemCmp(a, b item) int {
+	if itemLess(&a, &b) {
+		return -1
+	}
+	if itemLess(&b, &a) {
+		return 1
+	}
+	return 0
+}
+
+// orderBuffer holds the readings of the reorder window and gives them
+// back least first (itemLess), as one binary heap over all of them
+// would, at a fraction of the cost for the usual file: in time order,
+// the sensors of one time in any order.
+//
+// Readings not earlier than the last one held go to a run kept in time
+// order, each time's readings in arrival order; others go to a binary
+// heap. The readings of the run's first time are sorted fully when that
+// time comes to be delivered, once. Invariant: run[head:] is in time
+// order; run[head:sorted] is in itemLess order, and each of its
+// readings is less than every reading of run[sorted:]. The least reading
+// held is then the lesser of run[head] and the heap's top.
+type orderBuffer struct {
+	run    []item
+	head   int
+	sorted int
+	late   []item // binary heap (itemLess) of readings that came out of time order
+}
+
+func (b *orderBuffer) len() int { return len(b.run) - b.head + len(b.late) }
+
+func (b *orderBuffer) push(it item) {
+	n := len(b.run)
+	if n == b.head {
+		clear(b.run[:n])
+		b.run, b.head, b.sorted = append(b.run[:0], it), 0, 0
+		return
+	}
+	last := &b.run[n-1]
+	switch {
+	case it.sec > last.sec || it.sec == last.sec && it.nsec > last.nsec:
+		// A new time: greater than everything held in the run.
+	case sameTime(&it, last) && b.sorted < n:
+		// The last time is not sorted yet: its readings in any order.
+	case sameTime(&it, last) && !itemLess(&it, last):
+		// The last time is sorted and this one comes after it all.
+		b.sorted++
+	default:
+		b.pushLate(it)
+		return
+	}
+	if b.head >= 1024 && 2*b.head >= n {
+		// Move the held part down; drop what was delivered.
+		m := copy(b.run, b.run[b.head:])
+		clear(b.run[m:n])
+		b.run, b.sorted, b.head = b.run[:m], b.sorted-b.head, 0
+	}
+	b.run = append(b.run, it)
+}
+
+func (b *orderBuffer) pushLate(it item) {
+	b.late = append(b.late, it)
+	h := b.late
+	for j := len(h) - 1; j > 0; {
+		i := (j - 1) / 2
+		if !itemLess(&h[j], &h[i]) {
+			break
+		}
+		h[i], h[j] = h[j], h[i]
+		j = i
+	}
+}
+
+// fromRun says whether the least held reading is the run's first,
+// sorting the run's first time first if it is not sorted yet.
+func (b *orderBuffer) fromRun() bool {
+	n := len(b.run)
+	if b.head == n {
 		return false
 	}
-	return h[i].seq < h[j].seq
+	if b.sorted == b.head {
+		end := b.head + 1
+		for end < n && sameTime(&b.run[end], &b.run[b.head]) {
+			end++
+		}
+		slices.SortFunc(b.run[b.head:end], itemCmp)
+		b.sorted = end
+	}
+	return len(b.late) == 0 || itemLess(&b.run[b.head], &b.late[0])
 }
-func (h readingHeap) Swap(i, j int) { h[i], h[j] = h[j], h[i] }
-func (h *readingHeap) Push(x any)   { *h = append(*h, x.(item)) }
-func (h *readingHeap) Pop() any {
-	old := *h
-	it := old[len(old)-1]
-	*h = old[:len(old)-1]
+
+// min returns the least held reading; the buffer must not be empty.
+func (b *orderBuffer) min() *item {
+	if b.fromRun() {
+		return &b.run[b.head]
+	}
+	return &b.late[0]
+}
+
+// pop removes and returns the least held reading.
+func (b *orderBuffer) pop() item {
+	if b.fromRun() {
+		it := b.run[b.head]
+		b.run[b.head] = item{}
+		b.head++
+		return it
+	}
+	h := b.late
+	it := h[0]
+	n := len(h) - 1
+	h[0] = h[n]
+	h[n] = item{}
+	h = h[:n]
+	for i := 0; ; {
+		l := 2*i + 1
+		if l >= n {
+			break
+		}
+		j := l
+		if r := l + 1; r < n && itemLess(&h[r], &h[l]) {
+			j = r
+		}
+		if !itemLess(&h[j], &h[i]) {
+			break
+		}
+		h[i], h[j] = h[j], h[i]
+		i = j
+	}
+	b.late = h
 	return it
 }
