@@ -1,10 +1,11 @@
 #!/usr/bin/env bash
 # Detection benchmark: every scenario of testdata/scenarios/suite.tsv in
-# both conditions (exact model; realistic: 5-minute logging, 0.01 m
-# pressure resolution, true network off by up to 10 %), each through
-# simulate -> replay -> score --json, then one table per condition with
-# the measuring-stick targets beside the measured figures
-# (scripts/benchdetect).
+# each condition (exact model; realistic: 5-minute logging, 0.01 m
+# pressure resolution, true network off by up to 10 %; aged: the same,
+# plus the oldest pipe group far rougher than recorded and a link shut in
+# truth but open in the records), each through simulate -> replay ->
+# score --json, then one table per condition with the measuring-stick
+# targets beside the measured figures (scripts/benchdetect).
 #
 # Usage: scripts/bench-detect.sh            (or: make bench-detect)
 # Environment:
@@ -14,12 +15,13 @@
 #                (e.g. 'demo.*leak'); the table then covers those alone
 #   BENCH_KEEP   1: keep the work folder (truth, findings, scores, logs;
 #                readings are always removed: rerun simulate to get them)
-#   BENCH_CALIBRATED  0: skip the third condition, realistic-calibrated:
-#                each realistic run's readings of the learning period
-#                (before --from, no event in it) go through
-#                `plumbline calibrate`, and the same readings are replayed
-#                with the calibrated network and its residual scatter by
-#                hour (a copy of the configuration pointing at both)
+#   BENCH_CALIBRATED  0: skip the calibrated conditions, realistic-calibrated
+#                and aged-calibrated: each realistic or aged run's readings
+#                of the learning period (before --from, no event in it) go
+#                through `plumbline calibrate`, and the same readings are
+#                replayed with the calibrated network and its residual
+#                scatter by hour (a copy of the configuration pointing at
+#                both)
 set -euo pipefail
 
 cd "$(dirname "$0")/.."
@@ -39,8 +41,9 @@ started=$(date +%s)
 echo "bench-detect: building" >&2
 "$GO" build -o "$work/plumbline" ./daemon
 "$GO" build -o "$work/benchdetect" ./scripts/benchdetect
-# The realistic condition's true networks (the 5k one is too large to
-# commit; the demo's is also committed for runs by hand).
+# The true networks of the realistic and aged conditions,
+# true-<net>.geojson and true-<net>-aged.geojson (the 5k ones are too
+# large to commit; the demo's are also committed for runs by hand).
 "$GO" run ./testdata/scenarios/gen -true-networks "$work/true"
 
 # Longest runs first (the 5k town's, then by end time), so the last ones
@@ -63,9 +66,11 @@ one_run() {
 	dir="$WORK/res/$net/$cond/$name"
 	mkdir -p "$dir"
 	t0=$(date +%s)
-	if [[ "$cond" == realistic ]]; then
-		truenet=(--true-network "$WORK/true/true-$net.geojson")
-	fi
+	case "$cond" in
+	realistic) truenet=(--true-network "$WORK/true/true-$net.geojson") ;;
+	exact) ;;
+	*) truenet=(--true-network "$WORK/true/true-$net-$cond.geojson") ;;
+	esac
 	if "$WORK/plumbline" simulate --network "$network" --scenario "$scen" "${truenet[@]}" \
 		--out "$dir/readings.csv" --truth "$dir/truth.json" >"$dir/simulate.log" 2>&1 &&
 		"$WORK/plumbline" replay --config "$config" --source "$dir/readings.csv" \
@@ -78,21 +83,21 @@ one_run() {
 		cat "$dir"/*.log >"$dir/failed" 2>/dev/null || true
 		status=FAILED
 	fi
-	if [[ "$cond" == realistic && "${BENCH_CALIBRATED:-1}" != 0 && -f "$dir/readings.csv" ]]; then
-		calibrated_run "$net" "$scen" "$network" "$config" "$from" "$to" "$dir/readings.csv"
+	if [[ "$cond" != exact && "${BENCH_CALIBRATED:-1}" != 0 && -f "$dir/readings.csv" ]]; then
+		calibrated_run "$net" "$cond" "$scen" "$network" "$config" "$from" "$to" "$dir/readings.csv"
 	fi
 	rm -f "$dir/readings.csv"
 	echo "bench-detect: $net/$cond/$name $status in $(($(date +%s) - t0)) s" >&2
 }
 
-# calibrated_run replays a realistic run's readings with the network
-# calibrated on its learning period (everything before the score's
-# --from): the third condition, realistic-calibrated.
+# calibrated_run replays a realistic or aged run's readings with the
+# network calibrated on its learning period (everything before the
+# score's --from): the condition <cond>-calibrated.
 calibrated_run() {
-	local net=$1 scen=$2 network=$3 config=$4 from=$5 to=$6 readings=$7
+	local net=$1 cond=$2 scen=$3 network=$4 config=$5 from=$6 to=$7 readings=$8
 	local name dir t0 cfgdir
 	name=$(basename "$scen" .yaml)
-	dir="$WORK/res/$net/realistic-calibrated/$name"
+	dir="$WORK/res/$net/$cond-calibrated/$name"
 	mkdir -p "$dir"
 	t0=$(date +%s)
 	cfgdir=$(cd "$(dirname "$config")" && pwd)
@@ -114,7 +119,7 @@ calibrated_run() {
 		cat "$dir"/*.log >"$dir/failed" 2>/dev/null || true
 		status=FAILED
 	fi
-	echo "bench-detect: $net/realistic-calibrated/$name $status in $(($(date +%s) - t0)) s" >&2
+	echo "bench-detect: $net/$cond-calibrated/$name $status in $(($(date +%s) - t0)) s" >&2
 }
 export -f one_run calibrated_run
 export WORK="$work"
@@ -127,10 +132,10 @@ echo "bench-detect: runs done in $(($(date +%s) - started)) s" >&2
 	head -2 "$suite"
 	cat "$work/runs.tsv"
 	if [[ "${BENCH_CALIBRATED:-1}" != 0 ]]; then
-		awk -F '\t' -v OFS='\t' '$2 == "realistic" { $2 = "realistic-calibrated"; print }' "$work/runs.tsv"
+		awk -F '\t' -v OFS='\t' '$2 != "exact" { $2 = $2 "-calibrated"; print }' "$work/runs.tsv"
 	fi
 } >"$work/suite.tsv"
-"$work/benchdetect" -suite "$work/suite.tsv" -results "$work/res"
+"$work/benchdetect" -suite "$work/suite.tsv" -results "$work/res" -true "$work/true"
 # CPU time of everything this script waited for (bash's times: the
 # second line is the children's user and system time).
 times >"$work/times"

@@ -2,13 +2,15 @@
 // benchmark (scripts/bench-detect.sh) into one table per condition, with
 // the measuring-stick issue's targets beside the measured figures.
 //
-//	benchdetect -suite testdata/scenarios/suite.tsv -results DIR
+//	benchdetect -suite testdata/scenarios/suite.tsv -results DIR [-true DIR]
 //
 // DIR holds one folder per run, DIR/<net>/<condition>/<scenario name>/,
 // with score.json (`plumbline score --json`) or, for a run that failed,
 // a file named failed holding the error. The suite manifest (written by
 // `go run ./testdata/scenarios/gen`) names each run's scenario, network,
-// service configuration and observed period.
+// service configuration and observed period. Conditions are printed in
+// the order exact, realistic, realistic-calibrated, aged, aged-calibrated
+// (others after, by name).
 //
 // # Rows
 //
@@ -37,6 +39,21 @@
 //     in its zone after its start; a sensor fault "raised a leak or
 //     blockage": its run has a leak or blockage finding in the sensor's
 //     zone raised after the fault started.
+//
+// # Calibration
+//
+// A condition "<c>-calibrated" was replayed with the network that
+// `plumbline calibrate` fitted on the learning period of condition <c>;
+// its run folders hold calibration.json. Against the true network of
+// <c> (the -true folder's true-<net>.geojson for realistic,
+// true-<net>-<c>.geojson otherwise, as scripts/bench-detect.sh names them;
+// else the scenario's true_network) the table says, per roughness group
+// the fit identified, whether the group's true roughness (the
+// length-weighted geometric mean over its pipes, as the fit reports it)
+// lies within two standard errors of the estimate, and in particular for
+// the group whose truth departs most from its record; and whether each
+// link shut in truth but open in the records was named a suspected
+// closed or throttled valve.
 package main
 
 import (
@@ -64,12 +81,13 @@ import (
 func main() {
 	suite := flag.String("suite", "testdata/scenarios/suite.tsv", "suite manifest")
 	results := flag.String("results", "", "folder of run results (<net>/<condition>/<name>/score.json)")
+	trueDir := flag.String("true", "", "folder of the true networks (true-<net>.geojson, true-<net>-<condition>.geojson)")
 	flag.Parse()
 	if *results == "" {
 		fmt.Fprintln(os.Stderr, "benchdetect: -results is required")
 		os.Exit(2)
 	}
-	if err := run(os.Stdout, *suite, *results); err != nil {
+	if err := run(os.Stdout, *suite, *results, *trueDir); err != nil {
 		fmt.Fprintln(os.Stderr, "benchdetect:", err)
 		os.Exit(1)
 	}
@@ -152,14 +170,18 @@ type tally struct {
 	netRuns     map[string]int
 	netFalse    map[string]int
 	netZoneDays map[string]float64
+	// cals are the calibrations of a calibrated condition, one per run
+	// that has its report.
+	cals []calRun
 }
 
-func run(w io.Writer, suitePath, results string) error {
+func run(w io.Writer, suitePath, results, trueDir string) error {
 	specs, err := readSuite(suitePath)
 	if err != nil {
 		return err
 	}
 	sites := map[string]*site{}
+	truths := &trueNets{dir: trueDir, nets: map[string]*network.Network{}}
 	tallies := map[string]*tally{}
 	var conds []string
 	for _, r := range specs {
@@ -184,11 +206,17 @@ func run(w io.Writer, suitePath, results string) error {
 			tallies[r.cond] = t
 			conds = append(conds, r.cond)
 		}
-		if err := t.add(r, s, results); err != nil {
+		if err := t.add(r, s, results, truths); err != nil {
 			return err
 		}
 	}
-	sort.Strings(conds) // exact before realistic
+	sort.Slice(conds, func(a, b int) bool {
+		ra, rb := condRank(conds[a]), condRank(conds[b])
+		if ra != rb {
+			return ra < rb
+		}
+		return conds[a] < conds[b]
+	})
 	for i, c := range conds {
 		if i > 0 {
 			fmt.Fprintln(w)
@@ -198,8 +226,20 @@ func run(w io.Writer, suitePath, results string) error {
 	return nil
 }
 
+// condOrder is the order conditions are printed in; others follow.
+var condOrder = []string{"exact", "realistic", "realistic-calibrated", "aged", "aged-calibrated"}
+
+func condRank(c string) int {
+	for i, o := range condOrder {
+		if o == c {
+			return i
+		}
+	}
+	return len(condOrder)
+}
+
 // add reads one run's results into the tally.
-func (t *tally) add(r runSpec, s *site, results string) error {
+func (t *tally) add(r runSpec, s *site, results string, truths *trueNets) error {
 	dir := filepath.Join(results, r.net, r.cond, r.name())
 	id := r.net + "/" + r.cond + "/" + r.name()
 	t.runs = append(t.runs, id)
@@ -223,6 +263,15 @@ func (t *tally) add(r runSpec, s *site, results string) error {
 	sc, err := scenario.LoadFile(r.scenario)
 	if err != nil {
 		return fmt.Errorf("%s: %w", r.scenario, err)
+	}
+	if base, ok := strings.CutSuffix(r.cond, "-calibrated"); ok {
+		c, err := readCalibration(filepath.Join(dir, "calibration.json"), s.net, truths, r.net, base, sc)
+		if err != nil {
+			return fmt.Errorf("%s: %w", id, err)
+		}
+		if c != nil {
+			t.cals = append(t.cals, *c)
+		}
 	}
 	if len(sc.Events) != len(rep.Events) {
 		return fmt.Errorf("%s: %d events in the scenario, %d in the score", id, len(sc.Events), len(rep.Events))
@@ -446,6 +495,7 @@ func (t *tally) print(w io.Writer, cond string) {
 		fmt.Fprintf(w, "sensor faults: %d, called sensor fault %d (%s), raised no leak or blockage %d (%s)\n",
 			sf.events, sf.detected, pct(sf.detected, sf.events), sf.noWrong, pct(sf.noWrong, sf.events))
 	}
+	printCalibration(w, t.cals)
 
 	// The issue's targets.
 	fmt.Fprintln(w)

@@ -15,6 +15,7 @@ import (
 	"plumbline/model/network"
 	"plumbline/model/scenario"
 	"plumbline/model/score"
+	"plumbline/model/sim"
 )
 
 // TestNightOf checks the night count against hand-worked cases for the
@@ -112,7 +113,7 @@ func TestAggregate(t *testing.T) {
 	os.WriteFile(suite, []byte(manifest.String()), 0o644)
 
 	var out bytes.Buffer
-	if err := run(&out, suite, res); err != nil {
+	if err := run(&out, suite, res, ""); err != nil {
 		t.Fatal(err)
 	}
 	got := out.String()
@@ -125,6 +126,66 @@ func TestAggregate(t *testing.T) {
 		`leaks >=2 L/s detected\s+>= 95%\s+100%\s+yes`,
 		`false findings per zone per 30 d \(quiet\)\s+<= 1\s+0\.19\s+yes`,
 		`demo/exact/burst-central: replay: out of luck`,
+	} {
+		if !regexp.MustCompile(want).MatchString(got) {
+			t.Errorf("output lacks /%s/:\n%s", want, got)
+		}
+	}
+}
+
+// TestCalibrationLines writes a made-up calibration report beside a
+// calibrated run and checks the calibration lines against hand-worked
+// figures: the true network ages cast-iron-1930s to C × 0.6 and shuts
+// P-48, so the group's true C is 0.6 × its recorded 83.52 = 50.11
+// (every pipe of the group scaled alike scales the geometric mean
+// alike); the estimate 51.0 ± 1.0 holds it within 2 s.e., pvc-1980s's
+// 140 ± 1 does not hold its unchanged record 137.3.
+func TestCalibrationLines(t *testing.T) {
+	t.Chdir("../..")
+	res := t.TempDir()
+	net, err := network.ReadFile("configs/demo-town.geojson")
+	if err != nil {
+		t.Fatal(err)
+	}
+	tn, _, err := sim.Perturb(net, sim.Mismatch{Aged: []sim.Aging{{Name: "cast-iron-1930s",
+		Match: func(l *network.Link) bool { return l.Group == "cast-iron-1930s" }, Factor: 0.6}}, Shut: []string{"P-48"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	trueDir := filepath.Join(res, "true")
+	os.MkdirAll(trueDir, 0o755)
+	if err := network.WriteFile(filepath.Join(trueDir, "true-demo-aged.geojson"), tn); err != nil {
+		t.Fatal(err)
+	}
+	quiet, err := scenario.LoadFile("testdata/scenarios/demo/aged/quiet-60d.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	start := time.Date(2026, 3, 2, 0, 0, 0, 0, time.UTC)
+	dir := filepath.Join(res, "demo", "aged-calibrated", "quiet-60d")
+	os.MkdirAll(dir, 0o755)
+	rep := score.Score(quiet.Truth(net), nil, net, score.Options{Start: start.Add(7 * 24 * time.Hour), End: quiet.End()})
+	data, _ := json.Marshal(rep)
+	os.WriteFile(filepath.Join(dir, "score.json"), data, 0o644)
+	os.WriteFile(filepath.Join(dir, "calibration.json"), []byte(`{"parameters": [
+		{"kind": "roughness", "group": "cast-iron-1930s", "prior": 83.52, "estimate": 51.0, "std_err": 1.0, "identifiable": true},
+		{"kind": "roughness", "group": "pvc-1980s", "prior": 137.3, "estimate": 140, "std_err": 1, "identifiable": true},
+		{"kind": "roughness", "group": "pe-2010s", "prior": 138.9, "estimate": 138.9, "std_err": 280, "identifiable": false},
+		{"kind": "demand-multiplier", "zone": "central", "prior": 1, "estimate": 1.1, "std_err": 0.05, "identifiable": true}],
+		"suspects": [{"link": "P-48", "closed": true}, {"link": "P-1"}]}`), 0o644)
+	suite := filepath.Join(res, "suite.tsv")
+	os.WriteFile(suite, []byte(strings.Join([]string{"demo", "aged-calibrated", "testdata/scenarios/demo/aged/quiet-60d.yaml",
+		"configs/demo-town.geojson", "configs/demo-town.yaml",
+		start.Add(7 * 24 * time.Hour).Format(time.RFC3339), quiet.End().Format(time.RFC3339)}, "\t")+"\n"), 0o644)
+	var out bytes.Buffer
+	if err := run(&out, suite, res, trueDir); err != nil {
+		t.Fatal(err)
+	}
+	got := out.String()
+	for _, want := range []string{
+		`calibration: 1 runs; roughness groups identified 2 of 3, true C within 2 s\.e\. of the estimate in 1 of those \(50%\)`,
+		`group departing most from its record, cast-iron-1930s: recorded 83\.5, true 50\.1; identified in 1 of 1 runs, estimate median 51\.0, 51\.0 to 51\.0, true within 2 s\.e\. in 1 of 1`,
+		`links shut in truth, open in the records: P-48 named in 1 of 1 runs; other links suspected: 1 in 1 runs`,
 	} {
 		if !regexp.MustCompile(want).MatchString(got) {
 			t.Errorf("output lacks /%s/:\n%s", want, got)

@@ -97,6 +97,7 @@ func main() {
 // writes only the true networks, there.
 func run(repo, out, trueDir string) error {
 	nets := map[string]*network.Network{}
+	cfgs := map[string]*config.Config{}
 	for _, t := range targets {
 		n, err := network.ReadFile(filepath.Join(repo, t.network))
 		if err != nil {
@@ -104,32 +105,52 @@ func run(repo, out, trueDir string) error {
 		}
 		nets[t.key] = n
 	}
+	if trueDir == "" {
+		if err := writeTown5kConfig(nets["town5k"], filepath.Join(out, "configs/town-5k.yaml")); err != nil {
+			return err
+		}
+	}
+	scs := map[string][]scenario{}
+	mms := map[string]map[string]sim.Mismatch{}
+	specs := map[string]agedSpec{}
+	for _, t := range targets {
+		cfg, err := config.LoadFile(filepath.Join(repo, t.config))
+		if err != nil {
+			return fmt.Errorf("%s: %w", t.config, err)
+		}
+		cfgs[t.key] = cfg
+		scs[t.key] = suite(nets[t.key], cfg, t)
+		aged, spec, err := agedMismatch(nets[t.key], cfg, t, scs[t.key])
+		if err != nil {
+			return err
+		}
+		specs[t.key] = spec
+		mms[t.key] = map[string]sim.Mismatch{
+			"realistic": {Demand: mismatch, Diameter: mismatch, Roughness: mismatch, Seed: t.perturbSeed},
+			"aged":      aged,
+		}
+	}
 	if trueDir != "" {
 		for _, t := range targets {
-			if err := writeTrue(nets[t.key], t, filepath.Join(trueDir, "true-"+t.key+".geojson")); err != nil {
-				return err
+			for _, cond := range mismatched {
+				if err := writeTrue(nets[t.key], t, mms[t.key][cond], filepath.Join(trueDir, trueName(t.key, cond))); err != nil {
+					return err
+				}
 			}
 		}
 		return nil
 	}
-
-	if err := writeTown5kConfig(nets["town5k"], filepath.Join(out, "configs/town-5k.yaml")); err != nil {
-		return err
-	}
-	if err := writeTrue(nets["demo"], targets[0], filepath.Join(out, "testdata/scenarios/demo/true-demo.geojson")); err != nil {
-		return err
+	for _, cond := range mismatched {
+		if err := writeTrue(nets["demo"], targets[0], mms["demo"][cond], filepath.Join(out, "testdata/scenarios/demo", trueName("demo", cond))); err != nil {
+			return err
+		}
 	}
 
 	var manifest strings.Builder
 	manifest.WriteString("# Written by `go run ./testdata/scenarios/gen`; read by scripts/bench-detect.sh.\n")
 	manifest.WriteString("# net\tcondition\tscenario\tnetwork\tconfig\tfrom\tto\n")
 	for _, t := range targets {
-		cfg, err := config.LoadFile(filepath.Join(repo, t.config))
-		if err != nil {
-			return fmt.Errorf("%s: %w", t.config, err)
-		}
-		scs := suite(nets[t.key], cfg, t)
-		for _, cond := range []string{"exact", "realistic"} {
+		for _, cond := range conditions {
 			dir := filepath.Join("testdata/scenarios", t.key, cond)
 			if err := os.RemoveAll(filepath.Join(out, dir)); err != nil {
 				return err
@@ -137,9 +158,9 @@ func run(repo, out, trueDir string) error {
 			if err := os.MkdirAll(filepath.Join(out, dir), 0o755); err != nil {
 				return err
 			}
-			for _, sc := range scs {
+			for _, sc := range scs[t.key] {
 				path := filepath.Join(dir, sc.name+".yaml")
-				if err := os.WriteFile(filepath.Join(out, path), []byte(sc.yaml(t, cond)), 0o644); err != nil {
+				if err := os.WriteFile(filepath.Join(out, path), []byte(sc.yaml(t, cond, specs[t.key])), 0o644); err != nil {
 					return err
 				}
 				fmt.Fprintf(&manifest, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", t.key, cond, path, t.network, t.config,
@@ -150,9 +171,27 @@ func run(repo, out, trueDir string) error {
 	return os.WriteFile(filepath.Join(out, "testdata/scenarios/suite.tsv"), []byte(manifest.String()), 0o644)
 }
 
-// writeTrue writes the realistic condition's true network of t.
-func writeTrue(net *network.Network, t target, path string) error {
-	tn, _, err := sim.Perturb(net, sim.Mismatch{Demand: mismatch, Diameter: mismatch, Roughness: mismatch, Seed: t.perturbSeed})
+// conditions are the suite's conditions, in manifest order; mismatched
+// those whose water flows in a true network other than the records.
+var (
+	conditions = []string{"exact", "realistic", "aged"}
+	mismatched = []string{"realistic", "aged"}
+)
+
+// trueName is the file name of a condition's true network:
+// true-<net>.geojson for the realistic condition (as before the aged one
+// existed), true-<net>-<condition>.geojson otherwise.
+// scripts/bench-detect.sh and scripts/benchdetect use the same rule.
+func trueName(key, cond string) string {
+	if cond == "realistic" {
+		return "true-" + key + ".geojson"
+	}
+	return "true-" + key + "-" + cond + ".geojson"
+}
+
+// writeTrue writes a true network of t.
+func writeTrue(net *network.Network, t target, m sim.Mismatch, path string) error {
+	tn, _, err := sim.Perturb(net, m)
 	if err != nil {
 		return fmt.Errorf("%s: %w", t.network, err)
 	}
@@ -210,14 +249,27 @@ type scenario struct {
 	events   []event
 }
 
-func (s scenario) yaml(t target, cond string) string {
+func (s scenario) yaml(t target, cond string, aged agedSpec) string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "# %s\n", s.comment)
 	fmt.Fprintf(&b, "# Network: %s; service config: %s; condition: %s.\n", t.network, t.config, cond)
-	if cond == "realistic" {
-		fmt.Fprintf(&b, "# True network: true-%s.geojson (sim.Perturb: demands, diameters, roughness off by up to %.0f%%, seed %d);\n",
-			t.key, 100*mismatch, t.perturbSeed)
+	switch cond {
+	case "realistic":
+		fmt.Fprintf(&b, "# True network: %s (sim.Perturb: demands, diameters, roughness off by up to %.0f%%, seed %d);\n",
+			trueName(t.key, cond), 100*mismatch, t.perturbSeed)
 		b.WriteString("# scripts/bench-detect.sh writes it and passes --true-network.\n")
+	case "aged":
+		fmt.Fprintf(&b, "# True network: %s (sim.Perturb: demands, diameters, roughness off by up to %.0f%%, seed %d,\n",
+			trueName(t.key, cond), 100*mismatch, t.perturbSeed)
+		if aged.group != "" {
+			fmt.Fprintf(&b, "# the oldest pipe group %s aged to C × %s", aged.group, num(aged.factor))
+		} else {
+			b.WriteString("# no pipe group old enough to age")
+		}
+		if aged.shut != "" {
+			fmt.Fprintf(&b, ", link %s shut (moves a logger by %.1f m at peak)", aged.shut, aged.effect)
+		}
+		b.WriteString(");\n# the operator's model keeps the records. scripts/bench-detect.sh writes it and passes --true-network.\n")
 	}
 	b.WriteString("# Written by `go run ./testdata/scenarios/gen`; do not edit by hand.\n")
 	fmt.Fprintf(&b, "start: %s\n", suiteStart.Format(time.RFC3339))
@@ -225,11 +277,11 @@ func (s scenario) yaml(t target, cond string) string {
 	b.WriteString("step: 5m\n")
 	fmt.Fprintf(&b, "seed: %d\n", seedOf(t.key+"/"+s.name))
 	fmt.Fprintf(&b, "sensors: ../../../../%s\n", t.config)
-	if cond == "realistic" {
+	if cond != "exact" {
 		b.WriteString("logging_interval: 5m\n")
 		b.WriteString("resolution: {pressure: 0.01}\n")
 		if t.key == "demo" {
-			b.WriteString("true_network: ../true-demo.geojson\n")
+			fmt.Fprintf(&b, "true_network: ../%s\n", trueName(t.key, cond))
 		}
 	}
 	if len(s.events) == 0 {

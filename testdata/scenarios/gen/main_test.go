@@ -11,6 +11,8 @@ import (
 	"time"
 
 	"plumbline/daemon/config"
+	"plumbline/model/calib"
+	"plumbline/model/demand"
 	"plumbline/model/finding"
 	"plumbline/model/hydraulic"
 	"plumbline/model/network"
@@ -55,7 +57,7 @@ func TestCommittedSuiteIsGenerated(t *testing.T) {
 	}
 	// And nothing stale: every committed scenario is generated.
 	for _, key := range []string{"demo", "town5k"} {
-		for _, cond := range []string{"exact", "realistic"} {
+		for _, cond := range conditions {
 			files, _ := filepath.Glob(filepath.Join(repo, "testdata/scenarios", key, cond, "*.yaml"))
 			for _, f := range files {
 				rel, _ := filepath.Rel(repo, f)
@@ -137,9 +139,12 @@ func TestSuiteCoversTheIssue(t *testing.T) {
 			covers[key] = c
 		}
 		c.scenarios++
-		if m.cond == "realistic" {
+		if m.cond != "exact" {
 			if sc.LoggingInterval != 5*time.Minute || sc.Resolution[telemetry.Pressure] != 0.01 {
-				t.Errorf("%s: realistic without 5-minute logging and 0.01 m resolution", m.scenario)
+				t.Errorf("%s: %s without 5-minute logging and 0.01 m resolution", m.scenario, m.cond)
+			}
+			if m.net == "demo" && filepath.Base(sc.TrueNetwork) != trueName("demo", m.cond) {
+				t.Errorf("%s: true network %q, want %s", m.scenario, sc.TrueNetwork, trueName("demo", m.cond))
 			}
 		} else if sc.TrueNetwork != "" || len(sc.Resolution) > 0 {
 			t.Errorf("%s: exact condition with a true network or a resolution", m.scenario)
@@ -206,6 +211,14 @@ func TestSuiteCoversTheIssue(t *testing.T) {
 	}
 	if total := demo.scenarios + covers["town5k/exact"].scenarios; total < 40 {
 		t.Errorf("%d scenarios per condition, want at least 40", total)
+	}
+	// Every condition holds the same scenarios.
+	for _, n := range []string{"demo", "town5k"} {
+		for _, cond := range conditions {
+			if c := covers[n+"/"+cond]; c == nil || c.scenarios != covers[n+"/exact"].scenarios {
+				t.Errorf("%s/%s: not the exact condition's %d scenarios", n, cond, covers[n+"/exact"].scenarios)
+			}
+		}
 	}
 }
 
@@ -323,4 +336,118 @@ func TestTown5kZoneBalance(t *testing.T) {
 			t.Errorf("zone %s: inlets - outlets = %.6f L/s, demand %.6f L/s: difference %.3g, tolerance %.3g", z.ID, balance, demand, diff, 1e-6*demand)
 		}
 	}
+}
+
+// TestAgedTrueNetwork checks the committed true network of the demo
+// town's aged condition against the realistic one (the same random
+// draws): the oldest pipe group alone has a lower C, by agedFactor, one
+// link open in the records is shut, and with it shut the truth still
+// supplies every consumer: solved at the day's peak demand, what the
+// reservoirs and tanks send out equals what the junctions use
+// (continuity, a physical law), and no junction is cut off (a finite,
+// positive pressure); the shut link moves some logger by 1-3 m.
+func TestAgedTrueNetwork(t *testing.T) {
+	rec, err := network.ReadFile(filepath.Join(repo, "configs/demo-town.geojson"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	real, err := network.ReadFile(filepath.Join(repo, "testdata/scenarios/demo", trueName("demo", "realistic")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	aged, err := network.ReadFile(filepath.Join(repo, "testdata/scenarios/demo", trueName("demo", "aged")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := config.LoadFile(filepath.Join(repo, "configs/demo-town.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	old := oldestGroup(rec)
+	// The demo town's oldest pipes, by its records, are the cast iron
+	// installed 1930-1939; the rule must find them.
+	if old != "cast-iron-1930s" {
+		t.Fatalf("oldest group %q, want cast-iron-1930s", old)
+	}
+	var shut []int
+	for l := range rec.Links {
+		r, a := real.Links[l].Roughness, aged.Links[l].Roughness
+		want := r
+		if rec.Links[l].Kind == network.Pipe && calib.GroupOf(&rec.Links[l]) == old {
+			want = r * agedFactor
+		}
+		if math.Abs(a-want) > 1e-9*math.Max(1, want) {
+			t.Errorf("link %s: C %v in the aged truth, want %v", rec.Links[l].ID, a, want)
+		}
+		if aged.Links[l].Status == network.Closed && rec.Links[l].Status != network.Closed {
+			shut = append(shut, l)
+		}
+	}
+	if len(shut) != 1 {
+		t.Fatalf("%d links shut in the aged truth and open in the records, want 1", len(shut))
+	}
+	peakSolve := func(n *network.Network) *hydraulic.Solution {
+		t.Helper()
+		s, err := hydraulic.NewSolver(n, hydraulic.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var best []float64
+		bestSum := -1.0
+		for h := range 24 {
+			d := demand.Base(n, time.Date(2024, 1, 1, h, 0, 0, 0, time.UTC), nil, nil)
+			sum := 0.0
+			for i, v := range d {
+				if n.Nodes[i].Kind == network.Junction {
+					sum += v
+				}
+			}
+			if sum > bestSum {
+				best, bestSum = d, sum
+			}
+		}
+		sol, err := s.Solve(&hydraulic.Conditions{Demand: best}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return sol
+	}
+	sol := peakSolve(aged)
+	var out, used float64
+	for l := range aged.Links {
+		lk := &aged.Links[l]
+		for _, end := range []struct {
+			node int
+			sign float64
+		}{{lk.From, 1}, {lk.To, -1}} {
+			if k := aged.Nodes[end.node].Kind; k == network.Reservoir || k == network.Tank {
+				out += end.sign * sol.Flow[l]
+			}
+		}
+	}
+	for i := range aged.Nodes {
+		if aged.Nodes[i].Kind != network.Junction {
+			continue
+		}
+		used += sol.Demand[i]
+		if p := sol.Pressure[i]; math.IsNaN(p) || p <= 0 {
+			t.Errorf("junction %s: pressure %v m at peak with %s shut", aged.Nodes[i].ID, p, aged.Links[shut[0]].ID)
+		}
+	}
+	if math.Abs(out-used) > 1e-6*used {
+		t.Errorf("sources send %.6f L/s, junctions use %.6f L/s at peak with %s shut", out, used, aged.Links[shut[0]].ID)
+	}
+	open := aged.Clone()
+	open.Links[shut[0]].Status = rec.Links[shut[0]].Status
+	ref := peakSolve(open)
+	eff := 0.0
+	for _, s := range cfg.Sensors {
+		if i, ok := aged.NodeIndex(s.At); ok && s.Quantity == telemetry.Pressure {
+			eff = math.Max(eff, math.Abs(sol.Pressure[i]-ref.Pressure[i]))
+		}
+	}
+	if eff < shutLow || eff > shutHigh {
+		t.Errorf("shutting %s moves a logger by at most %.2f m at peak, want %g-%g m", aged.Links[shut[0]].ID, eff, shutLow, shutHigh)
+	}
+	t.Logf("aged %s, shut %s (%.2f m)", old, aged.Links[shut[0]].ID, eff)
 }
