@@ -343,3 +343,33 @@ func TestZoneWidePressureLossIsASupplyBlockage(t *testing.T) {
 		t.Errorf("%d blockage findings, want exactly 1", blockages)
 	}
 }
+
+// The zone's inlet meter reading 2 L/s low (an offset): the balance falls
+// — water appearing from nowhere — and the inflow-matched model, short
+// of 2 L/s, computes pressures too high at every logger by 2·|ubar|. By
+// hand the answer is the meter: a sensor fault on F-in, and no leak or
+// blockage.
+func TestInletMeterUnderReadingIsASensorFault(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(9*24*time.Hour + 3*time.Hour)
+	snaps := simulate(t, net, 12, 6, []sim.Event{{Kind: finding.SensorFault, At: "F-in", Start: start, Mode: "offset", Amount: -2}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	meter := false
+	for _, f := range fs {
+		t.Logf("%s %s %v: %s", f.Kind, f.Raised.Format(time.RFC3339), f.Candidates, f.Evidence)
+		if f.Kind != finding.SensorFault {
+			t.Errorf("a %s raised for a meter offset", f.Kind)
+			continue
+		}
+		for _, c := range f.Candidates {
+			meter = meter || c.ID == "F-in"
+		}
+	}
+	if !meter {
+		t.Error("no sensor fault names F-in")
+	}
+}

@@ -561,15 +561,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 	// leak (by more than the 2 units of SSE one parameter may buy, Akaike
 	// 1974) before the finding blames the instrument.
 	if len(top) > 0 && meterSSE+2 < top[0].sse && len(d.zones[zi].inlets)+len(d.zones[zi].outlets) > 0 {
-		f.Kind = finding.SensorFault
-		f.SizeLPS = 0
-		for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
-			f.Candidates = append(f.Candidates, finding.Candidate{ID: d.sens[m.sensor].s.ID, Score: 1})
-			d.st.Sensors[m.sensor].Excluded = true
-		}
-		f.Evidence = fmt.Sprintf("%s, but pressures did not fall as a leak of that size would: loggers read %s above the model, as a flow meter over-reading would make them; check the zone's flow meters",
-			why, describeResiduals(d, ev, 3))
-		d.accept(zi, ev, 0, now, f)
+		d.meterFault(zi, ev, onset, now, why+", but pressures did not fall as a leak of that size would")
 		return true
 	}
 	for i, r := range top {
@@ -581,6 +573,55 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 	return true
 }
 
+// meterFault raises a sensor fault on the zone's flow meters: the
+// residual picture is that of the inflow-matched model spreading water
+// that is not there (a meter over-reading: loggers read above the model)
+// or missing water that is (under-reading: below it). The meters are left
+// out of the balance until they read plausibly again.
+func (d *Detector) meterFault(zi int, ev evidence, onset, now time.Time, why string) {
+	f := finding.Finding{Kind: finding.SensorFault, Zone: d.zones[zi].z.ID, Onset: onset, Raised: now, Candidates: []finding.Candidate{}}
+	for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
+		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.sens[m.sensor].s.ID, Score: 1})
+		d.st.Sensors[m.sensor].Excluded = true
+	}
+	f.Evidence = fmt.Sprintf("%s: loggers read %s against the model, as a zone flow meter reading wrong would make them; check the zone's flow meters",
+		why, describeResiduals(d, ev, 3))
+	d.accept(zi, ev, 0, now, f)
+}
+
+// meterFit fits a zone flow meter error δ (L/s, reading minus truth) to
+// the evidence: the inflow-matched model spreads δ over the zone's
+// demand, so every logger's residual moves by −δ·ubar, and the balance
+// by δ. It returns δ and the misfit, or +Inf when the zone has no meter
+// or no balance, δ is within the meter's stated accuracy, or the balance
+// does not show it.
+func (d *Detector) meterFit(ev evidence, sg *signatures) (float64, float64) {
+	z := &d.zones[ev.zone]
+	if len(z.inlets)+len(z.outlets) == 0 || ev.wI <= 0 {
+		return 0, math.Inf(1)
+	}
+	num, den := ev.wI*ev.dI, ev.wI
+	for k := range ev.sensors {
+		num -= ev.w[k] * ev.dr[k] * sg.ubar[k]
+		den += ev.w[k] * sg.ubar[k] * sg.ubar[k]
+	}
+	delta := num / den
+	acc := math.Inf(1)
+	for _, m := range append(append([]meter{}, z.inlets...), z.outlets...) {
+		acc = math.Min(acc, d.sens[m.sensor].accuracy)
+	}
+	// A meter's error shows in the balance itself, at least two of its σ,
+	// on the side the pressures say: otherwise the pressures moved for
+	// another reason (a leak mended shows as a fall of the balance with
+	// pressures rising near the leak).
+	if math.Abs(delta) <= acc || math.Abs(ev.dI)*math.Sqrt(ev.wI) <= 2 || delta*ev.dI <= 0 {
+		return delta, math.Inf(1)
+	}
+	sse := ev.wI * (ev.dI - delta) * (ev.dI - delta)
+	sse += ev.misfit(func(k int) float64 { return -delta * sg.ubar[k] })
+	return delta, sse
+}
+
 // hypotheses are the ranked physical explanations of a residual picture:
 // blockages and leaks, each with the misfit of its best candidate, or
 // +Inf where that kind is not a candidate explanation at all.
@@ -588,6 +629,8 @@ type hypotheses struct {
 	blocks, leaks           []ranked
 	blockScores, leakScores []float64
 	bestBlockage, bestLeak  float64
+	// meter is the misfit of a zone flow meter error of meterSize L/s.
+	meter, meterSize float64
 }
 
 // physicalHypotheses ranks blockages and leaks for the evidence of a
@@ -598,7 +641,7 @@ type hypotheses struct {
 // must show in the zone balance (the primary leak evidence), at least
 // two of its σ above normal; a kind that cannot pass is not re-scored.
 func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
-	hy := hypotheses{bestBlockage: math.Inf(1), bestLeak: math.Inf(1)}
+	hy := hypotheses{bestBlockage: math.Inf(1), bestLeak: math.Inf(1), meter: math.Inf(1)}
 	if len(ev.sensors) < 2 {
 		return hy
 	}
@@ -606,6 +649,7 @@ func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
 	if err != nil {
 		return hy
 	}
+	hy.meterSize, hy.meter = d.meterFit(ev, sg)
 	if d.largestChange(ev) {
 		short, _ := rank(d.blockageFits(ev.zone, ev, sg), shortlist)
 		hy.blocks, hy.blockScores = rank(d.refineBlockages(ev, sg, short), d.cfg.Candidates)
@@ -667,11 +711,22 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	bestB, bestL := hy.bestBlockage, hy.bestLeak
 	desc := describeResiduals(d, ev, 3)
 	if d.cfg.Trace != nil {
-		d.tracef("%s residual alarm on %s (onset %s): moved %+.3f m (accuracy %.3f); sensor-fault misfit %.1f; blockage %s; leak %s; balance %+.2f L/s (%.1fσ); %d loggers",
+		d.tracef("%s residual alarm on %s (onset %s): moved %+.3f m (accuracy %.3f); sensor-fault misfit %.1f; blockage %s; leak %s; meter error %+.2f L/s misfit %.1f; balance %+.2f L/s (%.1fσ); %d loggers",
 			now.UTC().Format(time.RFC3339), d.sens[si].s.ID, onset.UTC().Format(time.RFC3339), ev.dr[me], d.sens[si].accuracy, faultSSE,
-			d.traceBest(bTop, bestB, true), d.traceBest(lTop, bestL, false), ev.dI, ev.dI*math.Sqrt(ev.wI), len(ev.sensors))
+			d.traceBest(bTop, bestB, true), d.traceBest(lTop, bestL, false), hy.meterSize, hy.meter, ev.dI, ev.dI*math.Sqrt(ev.wI), len(ev.sensors))
 	}
 	switch {
+	case hy.meter+2 < math.Min(faultSSE, math.Min(bestB, bestL)):
+		// Every logger moved as the zone meter's error would move them, and
+		// by more than the 2 units of SSE one parameter may buy (Akaike
+		// 1974) better than any other explanation.
+		side := "over"
+		if hy.meterSize < 0 {
+			side = "under"
+		}
+		d.meterFault(zi, ev, onset, now, fmt.Sprintf("pressures moved together since %s in the pattern of the zone's flow metering %s-reading by about %.2f L/s (zone imbalance %+.2f L/s)",
+			onset.UTC().Format("2006-01-02 15:04"), side, math.Abs(hy.meterSize), ev.dI))
+		return true
 	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:
 		// A logger that moved by less than its own stated accuracy is not
 		// faulty enough for a visit, and nothing else explains it better:
