@@ -64,12 +64,20 @@ func BenchmarkFactorizeSolve(b *testing.B) {
 	for _, kind := range benchKinds {
 		for _, k := range benchSizes {
 			p := benchPattern(kind, k)
-			for _, w := range []int{1, 2} {
+			for _, v := range []struct {
+				w int
+				m method
+			}{{1, methodSupernodal}, {2, methodSupernodal}, {1, methodSimplicial}} {
+				w := v.w
 				if w == 2 && k < 300 {
 					continue
 				}
-				b.Run(fmt.Sprintf("%s/n=%d/w=%d", kind, p.n, w), func(b *testing.B) {
-					sym, err := Analyze(p.n, p.rows, p.cols, Options{Workers: w})
+				name := "supernodal"
+				if v.m == methodSimplicial {
+					name = "simplicial"
+				}
+				b.Run(fmt.Sprintf("%s/n=%d/w=%d/%s", kind, p.n, w, name), func(b *testing.B) {
+					sym, err := Analyze(p.n, p.rows, p.cols, Options{Workers: w, method: v.m})
 					if err != nil {
 						b.Fatal(err)
 					}
@@ -87,6 +95,7 @@ func BenchmarkFactorizeSolve(b *testing.B) {
 						f.Solve(x, rhs)
 					}
 					b.ReportMetric(float64(sym.NNZ()), "nnzL")
+					b.ReportMetric(sym.flopsPerCol, "flops/column")
 				})
 			}
 		}

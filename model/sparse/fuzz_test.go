@@ -28,8 +28,12 @@ func FuzzAnalyzeSolve(f *testing.F) {
 			cols = append(cols, int(data[k+1])%(n+2)-1)
 		}
 		for _, o := range allOrderings {
-			for _, split := range []bool{false, true} {
-				sym, err := Analyze(n, rows, cols, Options{Ordering: o, forceSplit: split, Workers: 2})
+			for v := 0; v < 4; v++ {
+				split, m := v%2 == 1, methodSupernodal
+				if v >= 2 {
+					m = methodSimplicial
+				}
+				sym, err := Analyze(n, rows, cols, Options{Ordering: o, forceSplit: split, Workers: 2, method: m})
 				if err != nil {
 					if !errors.Is(err, ErrShape) {
 						t.Fatalf("Analyze: unexpected error %v", err)

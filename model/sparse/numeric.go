@@ -67,6 +67,13 @@ func (f *Factor) Factorize(diag, offdiag []float64) error {
 	if len(offdiag) != s.nIn {
 		return fmt.Errorf("sparse: factorize: %d off-diagonal values for %d pattern entries: %w", len(offdiag), s.nIn, ErrShape)
 	}
+	if s.simp != nil {
+		if c := f.factorSimplicial(diag, offdiag); c >= 0 {
+			return &NotPositiveDefiniteError{Row: s.perm[c], Pivot: f.ws[0].pivot}
+		}
+		f.ok = true
+		return nil
+	}
 	for w := range f.ws {
 		ws := &f.ws[w]
 		for k := range ws.head {
@@ -272,6 +279,13 @@ func (f *Factor) Solve(dst, b []float64) {
 	x := f.x
 	for k, o := range s.perm {
 		x[k] = b[o]
+	}
+	if s.simp != nil {
+		f.solveSimplicial(x)
+		for k, o := range s.perm {
+			dst[o] = x[k]
+		}
+		return
 	}
 	ns := len(s.superStart) - 1
 	vals := f.values

@@ -58,9 +58,9 @@ func TestPlanCovers(t *testing.T) {
 // and the refactorisation checks with split plans, and checks that one and
 // two goroutines give bit-identical factors.
 func TestSplitPlanSolves(t *testing.T) {
-	checkAgainstDense(t, true)
-	checkNotPositiveDefinite(t, true)
-	checkRefactorize(t, true)
+	checkAgainstDense(t, true, methodSupernodal)
+	checkNotPositiveDefinite(t, true, methodSupernodal)
+	checkRefactorize(t, true, methodSupernodal)
 	for _, p := range []pattern{networkPattern(30, 0.75, 8), gridPattern(25, 20), treePlusPattern(500, 50, 3)} {
 		d, o := values(p, 6)
 		var got [2][]float64

@@ -52,6 +52,9 @@ type Options struct {
 
 	// forceSplit makes Analyze split even small patterns (tests only).
 	forceSplit bool
+	// method forces the supernodal or the simplicial method (tests and
+	// benchmarks only; zero: chosen from the pattern).
+	method method
 }
 
 // ErrShape reports slices of the wrong length or out-of-range indices given to
@@ -111,6 +114,12 @@ type Symbolic struct {
 	asmPtr []int
 	asmSrc []int
 	asmDst []int
+
+	// simp, when set, is the structure of the simplicial method, which
+	// Factorize and Solve then use instead of the supernodes.
+	simp *simplicial
+	// flopsPerCol is the factorisation's multiply-adds per column.
+	flopsPerCol float64
 }
 
 // N returns the order of the matrix.
@@ -180,7 +189,7 @@ func Analyze(n int, rows, cols []int, opts Options) (*Symbolic, error) {
 	if opts.Workers < 0 || opts.Workers > 2 {
 		return nil, fmt.Errorf("sparse: analyze: %d workers, want 0, 1 or 2", opts.Workers)
 	}
-	s := analyzeOrdered(n, rows, cols, ptr, adj, order)
+	s := analyzeOrdered(n, rows, cols, ptr, adj, order, opts.method)
 	s.makePlan(opts.Workers, opts.forceSplit)
 	return s, nil
 }
@@ -190,9 +199,13 @@ func Analyze(n int, rows, cols []int, opts Options) (*Symbolic, error) {
 // Factor is reusable for any number of Factorize calls with new values.
 func (s *Symbolic) NewFactor() *Factor {
 	ns := len(s.superStart) - 1
+	nv := s.valPtr[ns]
+	if s.simp != nil {
+		nv = s.nnzL
+	}
 	f := &Factor{
 		sym:    s,
-		values: make([]float64, s.valPtr[ns]),
+		values: make([]float64, nv),
 		link:   make([]int, ns),
 		next:   make([]int, ns),
 		x:      make([]float64, s.n),

@@ -78,14 +78,16 @@ func TestAgainstDenseCholesky(t *testing.T) {
 	defer func() { useVector = vec }()
 	for _, v := range []bool{vec, false} {
 		useVector = v
-		checkAgainstDense(t, false)
+		checkAgainstDense(t, false, methodSupernodal)
+		checkAgainstDense(t, false, methodSimplicial)
+		checkAgainstDense(t, false, methodAuto)
 	}
 }
 
-func checkAgainstDense(t *testing.T, split bool) {
+func checkAgainstDense(t *testing.T, split bool, m method) {
 	for _, p := range testPatterns() {
 		for _, o := range allOrderings {
-			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split})
+			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split, method: m})
 			if err != nil {
 				t.Fatalf("%s/%v: Analyze: %v", p.name, o, err)
 			}
@@ -280,14 +282,18 @@ func TestMinimumDegreeFill(t *testing.T) {
 
 // TestNotPositiveDefinite checks that an indefinite matrix is reported at
 // the original row whose pivot fails.
-func TestNotPositiveDefinite(t *testing.T) { checkNotPositiveDefinite(t, false) }
+func TestNotPositiveDefinite(t *testing.T) {
+	for _, m := range []method{methodAuto, methodSupernodal, methodSimplicial} {
+		checkNotPositiveDefinite(t, false, m)
+	}
+}
 
-func checkNotPositiveDefinite(t *testing.T, split bool) {
+func checkNotPositiveDefinite(t *testing.T, split bool, m method) {
 	// A diagonal matrix with one negative entry: the failing row is that
 	// entry whatever the ordering.
 	for _, o := range allOrderings {
 		p := pattern{n: 6}
-		sym, err := Analyze(p.n, nil, nil, Options{Ordering: o, forceSplit: split})
+		sym, err := Analyze(p.n, nil, nil, Options{Ordering: o, forceSplit: split, method: m})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -309,7 +315,7 @@ func checkNotPositiveDefinite(t *testing.T, split bool) {
 		for _, bad := range []int{0, 14, 35} {
 			diag, off := values(p, 4)
 			diag[bad] = -0.5
-			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split})
+			sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, forceSplit: split, method: m})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -354,11 +360,15 @@ func checkNotPositiveDefinite(t *testing.T, split bool) {
 
 // TestRefactorize checks that a reused Factor with new values gives exactly
 // the result of a fresh Analyze+Factorize, and that reruns are bit-identical.
-func TestRefactorize(t *testing.T) { checkRefactorize(t, false) }
+func TestRefactorize(t *testing.T) {
+	for _, m := range []method{methodAuto, methodSupernodal, methodSimplicial} {
+		checkRefactorize(t, false, m)
+	}
+}
 
-func checkRefactorize(t *testing.T, split bool) {
+func checkRefactorize(t *testing.T, split bool, m method) {
 	p := networkPattern(20, 0.7, 12)
-	sym, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split})
+	sym, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split, method: m})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -380,7 +390,7 @@ func checkRefactorize(t *testing.T, split bool) {
 	x2 := make([]float64, p.n)
 	f.Solve(x2, b)
 
-	sym2, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split})
+	sym2, err := Analyze(p.n, p.rows, p.cols, Options{forceSplit: split, method: m})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -424,23 +434,25 @@ func checkRefactorize(t *testing.T, split bool) {
 
 // TestNoAllocations checks that Factorize and Solve allocate nothing.
 func TestNoAllocations(t *testing.T) {
-	p := networkPattern(30, 0.75, 3)
-	sym, err := Analyze(p.n, p.rows, p.cols, Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	f := sym.NewFactor()
-	d, o := values(p, 5)
-	b := make([]float64, p.n)
-	x := make([]float64, p.n)
-	allocs := testing.AllocsPerRun(20, func() {
-		if err := f.Factorize(d, o); err != nil {
+	for _, m := range []method{methodAuto, methodSupernodal, methodSimplicial} {
+		p := networkPattern(30, 0.75, 3)
+		sym, err := Analyze(p.n, p.rows, p.cols, Options{method: m})
+		if err != nil {
 			t.Fatal(err)
 		}
-		f.Solve(x, b)
-	})
-	if allocs != 0 {
-		t.Errorf("Factorize+Solve allocate %v times per run, want 0", allocs)
+		f := sym.NewFactor()
+		d, o := values(p, 5)
+		b := make([]float64, p.n)
+		x := make([]float64, p.n)
+		allocs := testing.AllocsPerRun(20, func() {
+			if err := f.Factorize(d, o); err != nil {
+				t.Fatal(err)
+			}
+			f.Solve(x, b)
+		})
+		if allocs != 0 {
+			t.Errorf("method %d: Factorize+Solve allocate %v times per run, want 0", m, allocs)
+		}
 	}
 }
 
@@ -576,5 +588,53 @@ func TestPoissonChain(t *testing.T) {
 				t.Fatalf("%v: x[%d] = %.12g, want %.12g (rel diff %.3g > 1e-9)", o, i, x[i], want, d/want)
 			}
 		}
+	}
+}
+
+// The two methods factor the same matrix: on every test pattern and
+// ordering, the simplicial factor's solution agrees with the supernodal
+// one to rounding (both are checked against gonum's dense Cholesky in
+// TestAgainstDenseCholesky), and Analyze picks the simplicial method for
+// a pipe network's pattern and the supernodal one for a fine grid.
+func TestMethodsAgree(t *testing.T) {
+	for _, p := range testPatterns() {
+		for _, o := range allOrderings {
+			var xs [2][]float64
+			for i, m := range []method{methodSupernodal, methodSimplicial} {
+				sym, err := Analyze(p.n, p.rows, p.cols, Options{Ordering: o, method: m})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if (sym.simp != nil) != (m == methodSimplicial) {
+					t.Fatalf("%s/%v: method %d not taken", p.name, o, m)
+				}
+				f := sym.NewFactor()
+				d, off := values(p, 7)
+				if err := f.Factorize(d, off); err != nil {
+					t.Fatal(err)
+				}
+				b := make([]float64, p.n)
+				for j := range b {
+					b[j] = float64(j%7) - 3
+				}
+				xs[i] = make([]float64, p.n)
+				f.Solve(xs[i], b)
+			}
+			diff := make([]float64, p.n)
+			for j := range diff {
+				diff[j] = xs[0][j] - xs[1][j]
+			}
+			if n := norm(xs[0]); n > 0 && norm(diff)/n > 1e-12 {
+				t.Errorf("%s/%v: methods differ by %.3g relative", p.name, o, norm(diff)/n)
+			}
+		}
+	}
+	net := networkPattern(60, 0.75, 1)
+	if sym, _ := Analyze(net.n, net.rows, net.cols, Options{}); sym.simp == nil {
+		t.Errorf("pipe-network pattern (%.0f multiply-adds per column): supernodal chosen", sym.flopsPerCol)
+	}
+	g := gridPattern(100, 100)
+	if sym, _ := Analyze(g.n, g.rows, g.cols, Options{}); sym.simp != nil {
+		t.Errorf("100×100 grid (%.0f multiply-adds per column): simplicial chosen", sym.flopsPerCol)
 	}
 }

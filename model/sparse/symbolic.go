@@ -8,7 +8,7 @@ import (
 // analyzeOrdered does the symbolic work of Analyze for a given fill-reducing
 // order: postorder, column counts, supernodes, row structure and the map of
 // the input entries into the storage of L.
-func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int) *Symbolic {
+func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int, m method) *Symbolic {
 	// Postorder the elimination tree: same fill, contiguous subtrees.
 	iperm := invert(order)
 	pptr, padj := permutedAdjacency(n, ptr, adj, order, iperm)
@@ -80,6 +80,10 @@ func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int) *Symbolic {
 		s.asmSrc[q] = e
 		s.asmDst[q] = pos[e]
 		fill[sn[e]]++
+	}
+	s.flopsPerCol = flopsPerColumn(counts)
+	if m == methodSimplicial || m == methodAuto && s.flopsPerCol <= simplicialMaxFlopsPerColumn {
+		s.simp = newSimplicial(n, pptr, padj, parent, rows, cols, iperm, counts)
 	}
 	return s
 }

@@ -1,0 +1,196 @@
+package sparse
+
+import (
+	"math"
+	"slices"
+)
+
+// Method is how Factorize computes L.
+type method uint8
+
+const (
+	methodAuto       method = iota // chosen by Analyze from the pattern
+	methodSupernodal               // supernodal, dense blocks
+	methodSimplicial               // column by column, one entry at a time
+)
+
+// simplicialMaxFlopsPerColumn is the work of the factorisation, in
+// multiply-adds per column of the matrix, up to which Analyze chooses
+// the simplicial method: for patterns as sparse as a pipe network's,
+// whose supernodes are a few columns wide, the dense kernels have too
+// little to work on to repay the bookkeeping of the blocks. Chosen by
+// measurement (BenchmarkFactorizeSolve and the hydraulic solver's
+// benchmarks on generated towns), not from a source.
+const simplicialMaxFlopsPerColumn = 250
+
+// simplicial is the structure of L for the up-looking (row by row)
+// Cholesky factorisation (Davis 2006, "Direct Methods for Sparse Linear
+// Systems", SIAM, §4.2, §4.1 for the row structure): row k of L is
+// computed from row k of A by a sparse triangular solve with the rows
+// above it, whose nonzero pattern is the set of columns on the tree
+// paths from the nonzeros of A's row k up to k (Liu 1990, §5). L is
+// stored by columns, each column's diagonal first and its other rows
+// ascending.
+type simplicial struct {
+	colPtr []int // column j of L at colPtr[j] .. colPtr[j+1]-1; the diagonal first
+	rowIdx []int // row of each stored entry
+	// Row k of L below the diagonal: columns rowCol[rowPtr[k]:rowPtr[k+1]],
+	// ascending, with the storage position of L(k, column) in rowPos.
+	rowPtr, rowCol, rowPos []int
+	// Row k of the permuted A below the diagonal: input entries
+	// aEnt[aPtr[k]:aPtr[k+1]] at columns aCol.
+	aPtr, aCol, aEnt []int
+}
+
+// flopsPerColumn returns the multiply-adds of a Cholesky factorisation
+// with the given column counts (Σ (count−1)², the updates of each
+// column's entries), divided by the number of columns.
+func flopsPerColumn(counts []int) float64 {
+	if len(counts) == 0 {
+		return 0
+	}
+	f := 0.0
+	for _, c := range counts {
+		f += float64(c-1) * float64(c-1)
+	}
+	return f / float64(len(counts))
+}
+
+// newSimplicial builds the row and column structure of L for the
+// permuted pattern (pptr, padj) with elimination tree parent and the
+// input entries (rows, cols) under iperm.
+func newSimplicial(n int, pptr, padj, parent []int, rows, cols, iperm []int, counts []int) *simplicial {
+	s := &simplicial{colPtr: make([]int, n+1)}
+	for j := 0; j < n; j++ {
+		s.colPtr[j+1] = s.colPtr[j] + counts[j]
+	}
+	nnz := s.colPtr[n]
+	s.rowIdx = make([]int, nnz)
+	next := make([]int, n) // next free position of each column
+	for j := 0; j < n; j++ {
+		s.rowIdx[s.colPtr[j]] = j
+		next[j] = s.colPtr[j] + 1
+	}
+	s.rowPtr = make([]int, n+1)
+	s.rowCol = make([]int, 0, nnz-n)
+	s.rowPos = make([]int, 0, nnz-n)
+	mark := make([]int, n)
+	for i := range mark {
+		mark[i] = -1
+	}
+	for k := 0; k < n; k++ {
+		start := len(s.rowCol)
+		mark[k] = k
+		for _, i := range padj[pptr[k]:pptr[k+1]] {
+			for x := i; x < k && mark[x] != k; x = parent[x] {
+				mark[x] = k
+				s.rowCol = append(s.rowCol, x)
+			}
+		}
+		slices.Sort(s.rowCol[start:])
+		for _, j := range s.rowCol[start:] {
+			p := next[j]
+			next[j]++
+			s.rowIdx[p] = k
+			s.rowPos = append(s.rowPos, p)
+		}
+		s.rowPtr[k+1] = len(s.rowCol)
+	}
+	// A's entries by permuted row, the larger index of each pair.
+	s.aPtr = make([]int, n+1)
+	for e := range rows {
+		a, b := iperm[rows[e]], iperm[cols[e]]
+		s.aPtr[max(a, b)+1]++
+	}
+	for k := 0; k < n; k++ {
+		s.aPtr[k+1] += s.aPtr[k]
+	}
+	s.aCol = make([]int, len(rows))
+	s.aEnt = make([]int, len(rows))
+	fill := slices.Clone(s.aPtr[:n])
+	for e := range rows {
+		a, b := iperm[rows[e]], iperm[cols[e]]
+		k := max(a, b)
+		s.aCol[fill[k]] = min(a, b)
+		s.aEnt[fill[k]] = e
+		fill[k]++
+	}
+	return s
+}
+
+// factorSimplicial computes L row by row into f.values (laid out as
+// s.simp) and returns the permuted column of the first failed pivot, or
+// -1, with the pivot in f.ws[0].pivot. x is zero on entry and on return.
+func (f *Factor) factorSimplicial(diag, offdiag []float64) int {
+	s := f.sym
+	sp := s.simp
+	L, x := f.values, f.x
+	for k := 0; k < s.n; k++ {
+		x[k] = diag[s.perm[k]]
+		for q := sp.aPtr[k]; q < sp.aPtr[k+1]; q++ {
+			x[sp.aCol[q]] += offdiag[sp.aEnt[q]]
+		}
+		d := x[k]
+		x[k] = 0
+		cols := sp.rowCol[sp.rowPtr[k]:sp.rowPtr[k+1]]
+		pos := sp.rowPos[sp.rowPtr[k]:sp.rowPtr[k+1]]
+		pos = pos[:len(cols)]
+		for t, j := range cols {
+			// L(k, j) = (x_j − Σ_{i<j} L(k,i) L(j,i)) / L(j,j); the sum was
+			// subtracted from x_j as the earlier columns were done.
+			c0 := sp.colPtr[j]
+			lkj := x[j] / L[c0]
+			x[j] = 0
+			p := pos[t]
+			// Column j's entries in rows between j and k update those rows
+			// of row k.
+			rows := sp.rowIdx[c0+1 : p]
+			vals := L[c0+1 : p]
+			vals = vals[:len(rows)]
+			for i, r := range rows {
+				x[r] -= vals[i] * lkj
+			}
+			d -= lkj * lkj
+			L[p] = lkj
+		}
+		if !(d > 0) || math.IsInf(d, 1) {
+			// Leave x zero for the next call.
+			for _, j := range cols {
+				x[j] = 0
+			}
+			f.ws[0].pivot = d
+			return k
+		}
+		L[sp.colPtr[k]] = math.Sqrt(d)
+	}
+	return -1
+}
+
+// solveSimplicial solves L Lᵀ x = x in place (permuted order).
+func (f *Factor) solveSimplicial(x []float64) {
+	sp := f.sym.simp
+	L := f.values
+	n := f.sym.n
+	for j := 0; j < n; j++ {
+		c0, c1 := sp.colPtr[j], sp.colPtr[j+1]
+		xj := x[j] / L[c0]
+		x[j] = xj
+		rows := sp.rowIdx[c0+1 : c1]
+		vals := L[c0+1 : c1]
+		vals = vals[:len(rows)]
+		for i, r := range rows {
+			x[r] -= vals[i] * xj
+		}
+	}
+	for j := n - 1; j >= 0; j-- {
+		c0, c1 := sp.colPtr[j], sp.colPtr[j+1]
+		sum := x[j]
+		rows := sp.rowIdx[c0+1 : c1]
+		vals := L[c0+1 : c1]
+		vals = vals[:len(rows)]
+		for i, r := range rows {
+			sum -= vals[i] * x[r]
+		}
+		x[j] = sum / L[c0]
+	}
+}
