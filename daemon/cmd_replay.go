@@ -15,6 +15,7 @@ import (
 	"plumbline/daemon/report"
 	"plumbline/daemon/service"
 	"plumbline/ingest/readfile"
+	"plumbline/ingest/source"
 	"plumbline/model/calib"
 	"plumbline/model/detect"
 	"plumbline/model/finding"
@@ -205,7 +206,9 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	for i, s := range cfg.Sensors {
 		ids[i] = s.ID
 	}
-	readErr := src.Read(ctx, from, to, ids, func(r telemetry.Reading) error {
+	// The source is read on a second goroutine while this one runs the
+	// pipeline (same readings, same order: the results do not change).
+	readErr := source.ReadAhead(ctx, src, from, to, ids, func(r telemetry.Reading) error {
 		if first.IsZero() {
 			first = r.Time
 		}

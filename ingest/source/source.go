@@ -17,6 +17,10 @@
 //     with errors.Is). Other errors are wrapped with the source's name.
 //     A source that skips bad input (a readings file) keeps reading the
 //     good part and returns an error describing what it skipped at the end.
+//
+// ReadAhead runs any Source's Read on a second goroutine, handing the
+// readings over in batches, so that parsing a file overlaps the work
+// done with each reading; what the callback sees is unchanged.
 package source
 
 import (
