@@ -897,9 +897,11 @@ func (d *Detector) traceBest(top []ranked, best float64, link bool) string {
 	if len(top) == 0 {
 		return "not considered"
 	}
-	id := d.net.Nodes[top[0].idx].ID
+	var id string
 	if link {
 		id = d.net.Links[top[0].idx].ID
+	} else {
+		id = d.net.Nodes[top[0].idx].ID
 	}
 	s := fmt.Sprintf("%s (size %.3g) misfit %.1f", id, top[0].size, top[0].sse)
 	if math.IsInf(best, 1) {
