@@ -373,3 +373,43 @@ func TestInletMeterUnderReadingIsASensorFault(t *testing.T) {
 		t.Error("no sensor fault names F-in")
 	}
 }
+
+// Two leaks in far corners of the grid town an hour apart (2 L/s at J-05
+// near the top right, 1.5 L/s at J-50 near the bottom left): the balance
+// sees one change of 3.5 L/s, the pressures see two sources. By hand the
+// answer is two leak findings, one near each corner.
+func TestTwoLeaksAtOnceAreTwoFindings(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(8*24*time.Hour + 13*time.Hour)
+	snaps := simulate(t, net, 11, 7, []sim.Event{
+		{Kind: finding.Leak, At: "J-05", Start: start, SizeLPS: 2, Exponent: 1},
+		{Kind: finding.Leak, At: "J-50", Start: start.Add(time.Hour), SizeLPS: 1.5, Exponent: 1},
+	})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	near := map[string]bool{}
+	leaks := 0
+	for _, f := range fs {
+		t.Logf("%s %.2f L/s %v: %s", f.Kind, f.SizeLPS, f.Candidates, f.Evidence)
+		if f.Kind != finding.Leak {
+			continue
+		}
+		leaks++
+		for _, c := range f.Candidates {
+			// Within one pipe (150 m) of the true junction, by the grid's
+			// names: row and column each within one.
+			for _, want := range []string{"J-05", "J-50"} {
+				dr, dc := int(c.ID[2])-int(want[2]), int(c.ID[3])-int(want[3])
+				if dr*dr <= 1 && dc*dc <= 1 {
+					near[want] = true
+				}
+			}
+		}
+	}
+	if leaks != 2 || !near["J-05"] || !near["J-50"] {
+		t.Errorf("%d leak findings, near J-05 %v, near J-50 %v: want two, one near each", leaks, near["J-05"], near["J-50"])
+	}
+}

@@ -481,7 +481,22 @@ func (d *Detector) blockageFits(zi int, ev evidence, sg *signatures) []ranked {
 // accept resets a zone's tests after a finding and takes the change into
 // the baselines, so that later tests look for what is new.
 func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time, f finding.Finding) {
-	zs := &d.st.Zones[zi]
+	d.acceptAll(zi, ev, leak, now, true, f)
+}
+
+// acceptAll is accept for one change explained by several findings (two
+// leaks at once); watch false raises them without the day of refining,
+// whose re-ranking fits one leak to the whole picture.
+func (d *Detector) acceptAll(zi int, ev evidence, leak float64, now time.Time, watch bool, fs ...finding.Finding) {
+	for _, f := range fs {
+		d.takeIn(zi, ev, now, watch, f, &leak)
+	}
+	d.settle(zi, leak, now)
+}
+
+// takeIn raises f or, when it is a change an open finding already
+// reports, updates that one (and then it moves no baseline: *leak = 0).
+func (d *Detector) takeIn(zi int, ev evidence, now time.Time, watch bool, f finding.Finding, leak *float64) {
 	if i, ok := d.sameEvent(f); ok {
 		// The change is the one an open finding already reports (a
 		// blockage's effect grows and shrinks with the day's flows): the
@@ -492,13 +507,19 @@ func (d *Detector) accept(zi int, ev evidence, leak float64, now time.Time, f fi
 			old.OpenFrac = f.OpenFrac
 		}
 		d.updated = append(d.updated, *old)
-		leak = 0
-	} else {
-		idx := d.raise(f)
-		if f.Kind == finding.Leak || f.Kind == finding.Blockage {
-			d.watch(idx, zi, ev, now)
-		}
+		*leak = 0
+		return
 	}
+	idx := d.raise(f)
+	if watch && (f.Kind == finding.Leak || f.Kind == finding.Blockage) {
+		d.watch(idx, zi, ev, now)
+	}
+}
+
+// settle resets a zone's tests after its change was explained and takes
+// a leak of the given size into the baselines.
+func (d *Detector) settle(zi int, leak float64, now time.Time) {
+	zs := &d.st.Zones[zi]
 	if leak != 0 {
 		zs.Base.Shift(leak)
 		zs.Offset += leak
@@ -564,6 +585,9 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.meterFault(zi, ev, onset, now, why+", but pressures did not fall as a leak of that size would")
 		return true
 	}
+	if d.raisePair(zi, ev, sg, size, onset, now, why) {
+		return true
+	}
 	for i, r := range top {
 		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
 	}
@@ -571,6 +595,129 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), f.Candidates[0].ID)
 	d.accept(zi, ev, size, now, f)
 	return true
+}
+
+// raisePair raises two leak findings in place of one when pairFit finds
+// that two leaks explain the change of size q clearly better.
+func (d *Detector) raisePair(zi int, ev evidence, sg *signatures, q float64, onset, now time.Time, why string) bool {
+	pair, ok := d.pairFit(zi, ev, sg, q)
+	if !ok {
+		return false
+	}
+	fs := make([]finding.Finding, len(pair))
+	for i, part := range pair {
+		fs[i] = finding.Finding{Kind: finding.Leak, Zone: d.zones[zi].z.ID, Onset: onset, Raised: now, SizeLPS: round2(part.size),
+			Candidates: d.leakCandidates(part.ev, sg, part.size)}
+		if len(fs[i].Candidates) == 0 {
+			fs[i].Candidates = []finding.Candidate{{ID: d.net.Nodes[part.at].ID, Score: 1}}
+		}
+	}
+	for i, part := range pair {
+		fs[i].Evidence = fmt.Sprintf("%s since %s; pressure residuals (%s) match two leaks better than one: this one of about %.2f L/s at %s, the other of about %.2f L/s at %s",
+			why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), part.size, fs[i].Candidates[0].ID, pair[1-i].size, fs[1-i].Candidates[0].ID)
+	}
+	d.acceptAll(zi, ev, q, now, false, fs...)
+	return true
+}
+
+// leakPart is one of two leaks that explain a change together: its size,
+// its best place, and the evidence with the other leak's (linear) part
+// taken out.
+type leakPart struct {
+	at   int
+	size float64
+	ev   evidence
+}
+
+// pairFit asks whether two leaks explain the residuals of a zone change
+// of q L/s clearly better than one: for each of the best single-leak
+// places a and every other junction b of the zone, the linear residual of
+// x L/s at a and q − x at b, x fitted by weighted least squares, each
+// part at least a fifth of q. The pair is taken when it lowers the misfit
+// by more than 2 + 2·ln N (N junctions in the zone): the 2 that one more
+// parameter may buy (Akaike 1974) and the 2·ln N that choosing the second
+// place among N buys by chance (a Bonferroni bound on the best of N
+// one-parameter fits, our choice).
+func (d *Detector) pairFit(zi int, ev evidence, sg *signatures, q float64) ([2]leakPart, bool) {
+	var out [2]leakPart
+	junctions := d.zones[zi].junctions
+	if len(junctions) < 2 || len(ev.sensors) < 3 {
+		return out, false
+	}
+	single := d.leakFits(zi, ev, sg, q)
+	best1 := math.Inf(1)
+	for _, r := range single {
+		best1 = math.Min(best1, r.sse)
+	}
+	short, _ := rank(append([]ranked(nil), single...), shortlist)
+	m := len(ev.sensors)
+	g := func(j int, dst []float64) {
+		for k := range dst {
+			dst[k] = sg.sens.Outflow[k][j] - sg.ubar[k]
+		}
+	}
+	ga, gb, r0, dd := make([]float64, m), make([]float64, m), make([]float64, m), make([]float64, m)
+	best2, bestA, bestB, bestX := math.Inf(1), -1, -1, 0.0
+	for _, a := range short {
+		g(a.idx, ga)
+		for _, b := range junctions {
+			if b == a.idx {
+				continue
+			}
+			g(b, gb)
+			num, den := 0.0, 0.0
+			for k := 0; k < m; k++ {
+				r0[k] = ev.dr[k] - q*gb[k]
+				dd[k] = ga[k] - gb[k]
+				num += ev.w[k] * r0[k] * dd[k]
+				den += ev.w[k] * dd[k] * dd[k]
+			}
+			if den <= 0 {
+				continue
+			}
+			x := num / den
+			if x < 0.2*q || x > 0.8*q {
+				continue
+			}
+			sse := 0.0
+			for k := 0; k < m; k++ {
+				r := r0[k] - x*dd[k]
+				sse += ev.w[k] * r * r
+			}
+			if sse < best2 {
+				best2, bestA, bestB, bestX = sse, a.idx, b, x
+			}
+		}
+	}
+	if bestA < 0 || best1-best2 <= 2+2*math.Log(float64(len(junctions))) {
+		return out, false
+	}
+	d.tracef("zone %s: two leaks, %.2f L/s at %s and %.2f L/s at %s, misfit %.1f against %.1f for one",
+		d.zones[zi].z.ID, bestX, d.net.Nodes[bestA].ID, q-bestX, d.net.Nodes[bestB].ID, best2, best1)
+	part := func(at int, size float64, other int, otherSize float64) leakPart {
+		e := ev
+		e.dr = make([]float64, m)
+		g(other, gb)
+		for k := range e.dr {
+			e.dr[k] = ev.dr[k] - otherSize*gb[k]
+		}
+		return leakPart{at: at, size: size, ev: e}
+	}
+	out[0] = part(bestA, bestX, bestB, q-bestX)
+	out[1] = part(bestB, q-bestX, bestA, bestX)
+	return out, true
+}
+
+// leakCandidates ranks the places of one leak of size q (linear fits,
+// then the non-linear re-scoring of the shortlist).
+func (d *Detector) leakCandidates(ev evidence, sg *signatures, q float64) []finding.Candidate {
+	short, _ := rank(d.leakFits(ev.zone, ev, sg, q), shortlist)
+	top, scores := rank(d.refineLeaks(ev, sg, short, q), d.cfg.Candidates)
+	cs := []finding.Candidate{}
+	for i, r := range top {
+		cs = append(cs, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
+	}
+	return cs
 }
 
 // meterFault raises a sensor fault on the zone's flow meters: the
@@ -631,6 +778,7 @@ type hypotheses struct {
 	bestBlockage, bestLeak  float64
 	// meter is the misfit of a zone flow meter error of meterSize L/s.
 	meter, meterSize float64
+	sg               *signatures
 }
 
 // physicalHypotheses ranks blockages and leaks for the evidence of a
@@ -649,6 +797,7 @@ func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
 	if err != nil {
 		return hy
 	}
+	hy.sg = sg
 	hy.meterSize, hy.meter = d.meterFit(ev, sg)
 	if d.largestChange(ev) {
 		short, _ := rank(d.blockageFits(ev.zone, ev, sg), shortlist)
@@ -767,6 +916,9 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		size := l.size
 		if ev.dI > 0 {
 			size = ev.dI // the balance measures a leak better than the pressures do
+		}
+		if hy.sg != nil && d.raisePair(zi, ev, hy.sg, size, onset, now, fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)) {
+			return true
 		}
 		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(size)}
 		for i, r := range lTop {
