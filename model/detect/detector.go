@@ -847,6 +847,10 @@ func (d *Detector) closeHour(h time.Time) {
 	for i := range hourly {
 		hourly[i] = math.NaN()
 	}
+	zoneHourly := make([]float64, len(d.zones))
+	for i := range zoneHourly {
+		zoneHourly[i] = math.NaN()
+	}
 	for zi := range d.zones {
 		zs := &d.st.Zones[zi]
 		a := d.st.ZoneAcc[zi]
@@ -863,6 +867,7 @@ func (d *Detector) closeHour(h time.Time) {
 			continue
 		}
 		x := a.Sum / float64(a.N)
+		zoneHourly[zi] = x
 		dev := zs.Base.Deviation(hr, x)
 		// Demand noise is multiplicative: a busy day raises every hour by
 		// the same fraction. The burst test therefore follows the imbalance
@@ -952,7 +957,7 @@ func (d *Detector) closeHour(h time.Time) {
 		}
 	}
 	end := h.Add(time.Hour)
-	d.refine(h, hourly)
+	d.refine(h, hourly, zoneHourly)
 	for _, al := range alarms {
 		if al.sensor < 0 {
 			zs := &d.st.Zones[al.zone]

@@ -30,6 +30,13 @@ type watch struct {
 	// ScaleSum and ScaleN add up the zone's demand scale over the hours.
 	ScaleSum float64
 	ScaleN   int
+	// ZonePre is the zone imbalance's normal by hour before the event;
+	// ZoneSum and ZoneN add up the hourly imbalance above it: a leak's
+	// size keeps being measured while its place is (the first estimate
+	// carries the hours between the estimated and the true onset).
+	ZonePre [24]float64
+	ZoneSum float64
+	ZoneN   int
 }
 
 // raise records a new finding and returns its index.
@@ -47,7 +54,11 @@ func (d *Detector) raise(f finding.Finding) int {
 
 // watch starts refining finding idx from the evidence it was raised on.
 func (d *Detector) watch(idx, zi int, ev evidence, now time.Time) {
-	w := watch{Index: idx, Zone: zi, Until: now.Add(refineFor), ScaleSum: ev.scale * float64(max(ev.hours, 1)), ScaleN: max(ev.hours, 1)}
+	w := watch{Index: idx, Zone: zi, Until: now.Add(refineFor), ScaleSum: ev.scale * float64(max(ev.hours, 1)), ScaleN: max(ev.hours, 1),
+		ZonePre: d.st.Zones[zi].Base.Mean}
+	if ev.wI > 0 {
+		w.ZoneSum, w.ZoneN = ev.dI*float64(max(ev.hours, 1)), max(ev.hours, 1)
+	}
 	for k, si := range ev.sensors {
 		ss := &d.st.Sensors[si]
 		n := int(math.Round(ev.w[k] * ss.Base.Sigma() * ss.Base.Sigma()))
@@ -63,7 +74,7 @@ func (d *Detector) watch(idx, zi int, ev evidence, now time.Time) {
 // refine adds the hour starting at h to every watched finding and
 // re-ranks its candidates; hourly holds each sensor's mean residual of
 // the hour (NaN where none).
-func (d *Detector) refine(h time.Time, hourly []float64) {
+func (d *Detector) refine(h time.Time, hourly, zoneHourly []float64) {
 	keep := d.st.Watch[:0]
 	for _, w := range d.st.Watch {
 		if !h.Before(w.Until) {
@@ -74,6 +85,10 @@ func (d *Detector) refine(h time.Time, hourly []float64) {
 			w.ScaleN++
 		}
 		hr := d.localHour(w.Zone, h)
+		if x := zoneHourly[w.Zone]; !math.IsNaN(x) {
+			w.ZoneSum += x - w.ZonePre[hr]
+			w.ZoneN++
+		}
 		for k, si := range w.Sensors {
 			if x := hourly[si]; !math.IsNaN(x) && !d.st.Sensors[si].Excluded {
 				w.Sum[k] += x - w.PreMean[k][hr]
@@ -108,6 +123,11 @@ func (d *Detector) rerank(w *watch) {
 	var ids []finding.Candidate
 	switch f.Kind {
 	case finding.Leak:
+		if w.ZoneN > 0 {
+			if q := w.ZoneSum / float64(w.ZoneN); q > 0 {
+				f.SizeLPS = round2(q)
+			}
+		}
 		short, _ := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), shortlist)
 		top, scores := rank(d.refineLeaks(ev, sg, short, f.SizeLPS), d.cfg.Candidates)
 		for i, r := range top {
