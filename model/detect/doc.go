@@ -51,12 +51,24 @@
 // open fraction fitted). An explanation must also matter in practice: a
 // blockage must move some logger by more than its accuracy, a leak must
 // show in the balance, a sensor fault must exceed the sensor's accuracy.
+// A zone flow meter error is weighed in both paths: its residual picture
+// is the inflow-matched model spreading water that is not there (or
+// missing water that is), the same shift of every logger by the zone's
+// mean response, with the balance moved by the same amount. Two leaks at
+// once are raised as two findings when two places explain the change
+// clearly better than one (by more than 2 + 2·ln N of misfit, N the
+// zone's junctions).
+//
 // Sensor faults are also raised directly from ingest's quality flags
 // (stuck, spikes, out of range), and faulty sensors are left out of the
-// evidence until they read normally again.
+// evidence until they read normally again. When most of a zone's loggers
+// read out of range together, that is not a fault of each: the zone lost
+// pressure, and one finding says so (a blockage on its supply, or a burst
+// when the balance shows the water going).
 //
 // A raised leak or blockage keeps gathering evidence for a day and its
-// candidates are revised (StepResult.Updated); the change is then taken
+// candidates are revised (StepResult.Updated), a leak's size with them
+// (measured from whole hours of the leak); the change is then taken
 // into the baselines so that later tests look for what is new. A leak is
 // resolved when the night flow falls back (Active lists the findings whose
 // evidence holds).
