@@ -95,8 +95,10 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	al.Flush(end)
 	zones := map[string]*time.Location{}
+	balances := map[string]calib.ZoneMeters{}
 	for _, z := range cfg.Zones {
 		zones[z.ID] = z.TimeZone
+		balances[z.ID] = calib.ZoneMeters{Inlets: z.Inlets, Outlets: z.Outlets}
 	}
 	res, err := calib.Fit(ctx, calib.Problem{Network: cfg.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones}, calib.Settings{Interval: *interval})
 	if err != nil {
@@ -112,8 +114,9 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	if *noise != "" {
 		// The detector's noise by hour of day: the calibrated network's
-		// residuals over the whole window (config calibration.noise_file).
-		ev, err := calib.Evaluate(ctx, calib.Problem{Network: res.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones}, calib.Settings{Interval: *interval})
+		// residuals over the whole window (config calibration.noise_file),
+		// against the inflow-matched model as the detector's are.
+		ev, err := calib.Evaluate(ctx, calib.Problem{Network: res.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones, Balances: balances}, calib.Settings{Interval: *interval})
 		if err != nil {
 			return fmt.Errorf("noise file: %w", err)
 		}

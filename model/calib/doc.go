@@ -65,6 +65,35 @@
 // Jonkergouw (2009, "Quo vadis water distribution model calibration?",
 // Urban Water J. 6(1)) for a review (both from memory).
 //
+// Weights: the first fit weighs each reading by its sensor's accuracy.
+// Model error is larger than instrument noise for some sensors (a zone's
+// inlet meter sees consumption swing from junction to junction and day to
+// day, which hourly multipliers cannot follow), so after it converges
+// each sensor's weight is divided by its noise factor s² (below) and the
+// fit goes on, at most twice: iteratively reweighted, or feasible
+// generalised, least squares (e.g. Carroll & Ruppert 1988,
+// "Transformation and Weighting in Regression", from memory). The
+// misfits reported stay on the accuracy weights. Settings.NoReweight
+// keeps the first weights.
+//
+// Pipes the readings see one by one: a group's roughness is a mean over
+// many pipes, but a precise sensor may read the loss of one pipe alone
+// (a pump's outlet logger, its rising main), and that pipe's own
+// departure from its group (an internal diameter off its record, a
+// rougher length) would pull the whole group, and other groups with it
+// to compensate. After the groups and patterns are fitted (and the
+// closed-valve check has run on that fit), every grouped pipe whose
+// information from the readings, Σ w (∂obs/∂ln C)² at the recorded
+// state, exceeds 1/Settings.PipeSpread² (default spread 0.15 in ln C)
+// gets its own log-multiplier about its group's, with a normal prior of
+// that spread and bounds of three spreads (at most 80 pipes, the best
+// seen), and everything is fitted again: the hierarchical model of
+// pipes within groups, in the random-effects form of Henderson's
+// mixed-model equations (Henderson 1950, from memory). The pipes' own
+// factors are written into the calibrated network and listed in
+// Result.PipeEffects; one on its bound hints at something else, such as
+// a valve partly shut.
+//
 // Snapshots: one per Settings.Interval (default 1 h). The last
 // Settings.HoldOut (default 20 %, at least one) of whole days are held
 // out for validation. Beyond Settings.MaxSnapshots (168) the fit keeps,
@@ -73,9 +102,11 @@
 //
 // # Uncertainty and identifiability
 //
-// Standard errors come from the sandwich (JᵀWJ+P)⁻¹ (Σ wᵢ sₖ² JᵢᵀJᵢ)
-// (JᵀWJ+P)⁻¹, where sₖ² ≥ 1 is sensor k's noise factor: its weighted
-// residual variance after the fit with the fit's leverage removed.
+// Standard errors come from the sandwich (JᵀWJ+P)⁻¹ (Σ wᵢ sₖ² JᵢᵀJᵢ +
+// P_δ) (JᵀWJ+P)⁻¹, where sₖ² ≥ 1 is sensor k's noise factor: its
+// weighted residual variance after the fit with the fit's leverage
+// removed; P_δ is the prior precision of the pipes' own factors, whose
+// spread is a source of variation, not a mere penalty.
 // Readings of one day share its weather, so the demand multipliers carry
 // the mean day factor of the fit days: the day-to-day spread of each
 // zone's consumption is estimated (and at least Settings.DayVariation,
@@ -93,7 +124,7 @@
 //
 // # Closed-valve check
 //
-// After the fit, every open pipe and valve is screened by the
+// After the fit of groups and patterns, every open pipe and valve is screened by the
 // linearised fit of a resistance increase to the remaining residuals
 // (at the fitted and at the recorded state); the best candidates are
 // solved with resistance factors 10 and 1000 and shut on a spread

@@ -13,6 +13,12 @@ import (
 // of day that the detector starts from (Residuals), and the comparison of
 // two calibrations on the same held-out snapshots (Misfit).
 type Evaluation struct {
+	// InflowMatched says the residuals are against the inflow-matched
+	// model (Problem.Balances given); Matched counts the zone-snapshots
+	// whose demand was scaled to the measured inflow, Unmatched those
+	// left on the patterns (a meter unreadable or missing).
+	InflowMatched      bool
+	Matched, Unmatched int
 	// Snapshots is the number of snapshots solved and compared, Rows the
 	// number of readings in them; Failed the snapshots the network could
 	// not solve (left out, named in Warnings).
@@ -47,7 +53,13 @@ type SensorResiduals struct {
 // Settings.Interval, as Fit keeps them; no hold-out, no limit on their
 // number) with its recorded roughness and patterns and the snapshots'
 // boundary conditions, and compares the modelled values with the
-// readings. Give it Result.Network to see a calibration's residuals.
+// readings. With p.Balances, each zone's demand at each snapshot is first
+// scaled so that the zone uses what its meters measure (inflow less
+// outflow; limited to 0..5 times the patterns' demand), as the detector's
+// inflow-matched solve does: the residuals are then the ones the
+// detector's baselines hold, without the day-to-day swing of consumption
+// that the meters see, and a noise table made from them (NoiseFrom) is
+// the scatter the detector will meet. Give it Result.Network to see a calibration's residuals.
 // Settings other than Interval, Workers and the accuracy defaults are
 // ignored. Snapshots that do not solve are left out and named in
 // Warnings; an error is returned for a problem with no usable sensor or
@@ -65,6 +77,10 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 	m, snaps, _, _, _, locs, err := setup(p, s, warn)
 	if err != nil {
 		return nil, err
+	}
+	if len(p.Balances) > 0 {
+		ev.InflowMatched = true
+		ev.Matched, ev.Unmatched = m.matchInflow(p, snaps, warn)
 	}
 	b := newBatch(snaps, m.sens)
 	st, err := m.evaluateAll(ctx, b, nil, nil, noTrial)
@@ -113,7 +129,7 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 		}
 		k := b.sen[i]
 		ev.Rows++
-		cost += b.w[i] * r * r
+		cost += b.aw[i] * r * r
 		a := &accs[k]
 		a.n++
 		a.sum += r
@@ -147,4 +163,90 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 		ev.Sensors = append(ev.Sensors, sr)
 	}
 	return ev, nil
+}
+
+// maxMatch bounds the inflow-matched scale of a zone's demand, as the
+// detector's does (0..5).
+const maxMatch = 5
+
+// matchInflow scales each snapshot's demand, zone by zone, to the zone's
+// metered consumption (see Evaluate). Zones or meters it cannot use are
+// warned about once.
+func (m *model) matchInflow(p Problem, snaps []*snapData, warn func(string)) (matched, unmatched int) {
+	bySensor := map[string]int{}
+	for k, si := range m.sens {
+		bySensor[si.s.ID] = k
+	}
+	type meter struct {
+		k    int
+		sign float64
+	}
+	zoneMeters := make([][]meter, len(m.zones))
+	ok := make([]bool, len(m.zones))
+	for z, name := range m.zones {
+		zm, has := p.Balances[name]
+		if !has || len(zm.Inlets)+len(zm.Outlets) == 0 {
+			continue
+		}
+		ok[z] = true
+		for _, list := range []struct {
+			ids    []string
+			outlet bool
+		}{{zm.Inlets, false}, {zm.Outlets, true}} {
+			for _, id := range list.ids {
+				k, found := bySensor[id]
+				if !found || m.sens[k].link < 0 {
+					warn(fmt.Sprintf("zone %s: balance meter %s is not a flow sensor of the problem: the zone's demand stays on its patterns", name, id))
+					ok[z] = false
+					continue
+				}
+				l := &m.net.Links[m.sens[k].link]
+				from, to := m.net.Nodes[l.From].Zone == name, m.net.Nodes[l.To].Zone == name
+				sign := 1.0
+				switch {
+				case to && !from:
+				case from && !to:
+					sign = -1
+				case list.outlet:
+					sign = -1
+				}
+				zoneMeters[z] = append(zoneMeters[z], meter{k, sign})
+			}
+		}
+	}
+	for _, s := range snaps {
+		for z := range m.zones {
+			if !ok[z] {
+				continue
+			}
+			q := 0.0
+			usable := true
+			for _, mt := range zoneMeters[z] {
+				v := s.y[mt.k]
+				if math.IsNaN(v) {
+					usable = false
+					break
+				}
+				q += mt.sign * v
+			}
+			dem := 0.0
+			for j, zi := range m.zoneOf {
+				if zi == z {
+					dem += s.pd[j]
+				}
+			}
+			if !usable || dem <= 0 {
+				unmatched++
+				continue
+			}
+			f := math.Min(maxMatch, math.Max(0, q/dem))
+			for j, zi := range m.zoneOf {
+				if zi == z {
+					s.pd[j] *= f
+				}
+			}
+			matched++
+		}
+	}
+	return matched, unmatched
 }

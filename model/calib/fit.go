@@ -98,97 +98,78 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	}
 	res.Evaluations++
 	J := mat.NewDense(max(1, b.rows), max(1, np), nil)
+	var A *mat.SymDense
+	var g []float64
+	var screen *linkScreen // every link's score and information at the recorded state
+	if np > 0 {
+		nl := len(p.Network.Links)
+		screen = &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
+		if err := m.jacobian(ctx, b, st0, J, nil, screen); err != nil {
+			return nil, err
+		}
+		A, g = normal(J, b.w, st0.r, np)
+	}
 	free := make([]bool, np)
 	for i := range free {
 		free[i] = true
 	}
-	var A *mat.SymDense
-	var g []float64
-	var priorScreen *linkScreen // closed-valve screen at the recorded state
 	if np > 0 {
-		if s.SuspectCandidates > 0 {
-			nl := len(p.Network.Links)
-			priorScreen = &linkScreen{g: make([]float64, nl), h: make([]float64, nl)}
-		}
-		if err := m.jacobian(ctx, b, st0, J, nil, priorScreen); err != nil {
-			return nil, err
-		}
-		A, g = normal(J, b.w, st0.r, np)
 		// Identifiability from the recorded network, by sensor accuracy.
 		m.identify(A, free)
 	}
-	cost0 := b.cost(st0.r)
-	res.MisfitBefore = cost0 / float64(max(1, b.rows))
+	res.MisfitBefore = b.accCost(st0.r) / float64(max(1, b.rows))
 	logf("calibration start", "snapshots", len(fit), "rows", b.rows, "parameters", np, "misfit", res.MisfitBefore)
 
-	cur, theta := st0, theta0
-	var scale []float64
-	var cov *mat.SymDense
-	for round := 0; ; round++ {
-		if countTrue(free) == 0 {
-			res.Status = NothingToFit
-			cur, theta = st0, theta0
-			if A != nil {
-				scale = m.noiseFactors(b, J, A, cur.r, free)
-				cov = m.covariance(b, J, A, free, scale)
-			}
-			break
-		}
-		cur, theta, A, g, err = m.levenberg(ctx, b, cur, theta, free, J, A, g, res, logf, noTrial, s.MaxIterations)
-		if err != nil {
-			return nil, err
-		}
-		scale = m.noiseFactors(b, J, A, cur.r, free)
-		cov = m.covariance(b, J, A, free, scale)
-		m.dayVariation(b, J, cur.r, theta, free, scale, cov, res)
-		// Parameters whose standard error, with the residual noise, is
-		// still too large go back to their prior and the rest is refitted.
-		again := false
-		for i := range m.params {
-			if free[i] && math.Sqrt(cov.At(i, i)) > m.maxSE(i) {
-				free[i] = false
-				theta[i] = m.params[i].prior
-				again = true
-			}
-		}
-		if !again || round >= 2 {
-			if again {
-				cur, err = m.evaluate(ctx, b, theta, cur, noTrial)
-				if err != nil {
-					return nil, err
-				}
-				if err := m.jacobian(ctx, b, cur, J, nil, nil); err != nil {
-					return nil, err
-				}
-				A, g = normal(J, b.w, cur.r, np)
-				scale = m.noiseFactors(b, J, A, cur.r, free)
-				cov = m.covariance(b, J, A, free, scale)
-				m.dayVariation(b, J, cur.r, theta, free, scale, cov, res)
-			}
-			break
-		}
-		cur, err = m.evaluate(ctx, b, theta, cur, noTrial)
-		if err != nil {
-			return nil, err
-		}
-		res.Evaluations++
-		if err := m.jacobian(ctx, b, cur, J, nil, nil); err != nil {
-			return nil, err
-		}
-		A, g = normal(J, b.w, cur.r, np)
+	// The groups and zone patterns first.
+	ft := &fitting{b: b, J: J, A: A, g: g, cur: st0, theta: theta0, free: free}
+	if err := m.fitRounds(ctx, ft, fit, st0, theta0, res, logf, !s.NoReweight); err != nil {
+		return nil, err
 	}
-	_ = g
+	// Closed-valve and topology check, on that fit: pipes with their own
+	// roughness could bend to mimic a shut valve nearby.
+	if s.SuspectCandidates > 0 && screen != nil {
+		sus, err := m.suspects(ctx, ft.b, ft.cur, screen, ft.free, ft.scale)
+		if err != nil {
+			return nil, err
+		}
+		res.Suspects = sus
+	}
+	logf("calibration groups fitted", "elapsed", time.Since(start).String())
+	// Then the pipes the readings see one by one, with the rest.
+	if screen != nil && m.addPipeEffects(screen, st0) {
+		n := len(m.params)
+		grow := func(v []float64) []float64 { return append(v, make([]float64, n-len(v))...) }
+		theta0 = grow(theta0)
+		st0.theta = append([]float64(nil), theta0...)
+		ft.theta = grow(ft.theta)
+		ft.cur.theta = append([]float64(nil), ft.theta...)
+		for len(ft.free) < n {
+			ft.free = append(ft.free, true)
+		}
+		np = n
+		ft.J = mat.NewDense(max(1, ft.b.rows), np, nil)
+		if err := m.jacobian(ctx, ft.b, ft.cur, ft.J, nil, nil); err != nil {
+			return nil, err
+		}
+		ft.A, ft.g = normal(ft.J, ft.b.w, ft.cur.r, np)
+		if err := m.fitRounds(ctx, ft, fit, st0, theta0, res, logf, false); err != nil {
+			return nil, err
+		}
+	}
+	b, J, A, cur, theta, free := ft.b, ft.J, ft.A, ft.cur, ft.theta, ft.free
+	scale, cov := ft.scale, ft.cov
 	if scale == nil {
 		scale = make([]float64, len(m.sens))
 		for i := range scale {
 			scale[i] = 1
 		}
 	}
-	res.MisfitAfter = b.cost(cur.r) / float64(max(1, b.rows))
+	res.MisfitAfter = b.accCost(cur.r) / float64(max(1, b.rows))
 	if cov == nil {
 		cov = mat.NewSymDense(max(1, np), nil)
 	}
 	res.Parameters = m.report(theta, free, A, cov)
+	res.PipeEffects = m.pipeEffects(theta, free, cov)
 	res.Sensors = m.sensorFits(b, st0.r, cur.r, scale)
 
 	logf("calibration fitted", "elapsed", time.Since(start).String())
@@ -220,24 +201,101 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 			return nil, fmt.Errorf("calibration: validation, calibrated network: %w", err)
 		}
 		res.Validation.Snapshots = len(held)
-		res.Validation.MisfitBefore = hb.cost(before.r) / float64(max(1, hb.rows))
-		res.Validation.MisfitAfter = hb.cost(after.r) / float64(max(1, hb.rows))
+		res.Validation.MisfitBefore = hb.accCost(before.r) / float64(max(1, hb.rows))
+		res.Validation.MisfitAfter = hb.accCost(after.r) / float64(max(1, hb.rows))
 		res.Validation.Sensors = m.sensorFits(hb, before.r, after.r, nil)
 	}
 
 	logf("calibration validated", "elapsed", time.Since(start).String())
-	// Closed-valve and topology check.
-	if s.SuspectCandidates > 0 {
-		sus, err := m.suspects(ctx, b, cur, priorScreen, free, scale)
-		if err != nil {
-			return nil, err
-		}
-		res.Suspects = sus
-	}
 	res.Network = m.calibrated(theta, free, locs, warn)
 	res.Elapsed = time.Since(start)
 	logf("calibration done", "status", res.Status.String(), "iterations", res.Iterations, "misfit", res.MisfitAfter, "elapsed", res.Elapsed.String())
 	return res, nil
+}
+
+// fitting is the state of a fit between its phases: the batch (its
+// weights change when the sensors are reweighted), the Jacobian and
+// normal equations at cur, the estimates and which are free, and after
+// fitRounds the sensors' noise factors and the covariance.
+type fitting struct {
+	b     *batch
+	J     *mat.Dense
+	A     *mat.SymDense
+	g     []float64
+	cur   *state
+	theta []float64
+	free  []bool
+	scale []float64
+	cov   *mat.SymDense
+}
+
+// fitRounds runs Levenberg-Marquardt from ft's state on its free
+// parameters (with reweight, then reweights the sensors and goes on,
+// see reweight), computes the noise factors and the covariance, returns
+// parameters whose standard error is still too large to their prior and
+// refits the rest, up to three rounds. st0 and theta0 are the recorded
+// state, for a fit with nothing free.
+func (m *model) fitRounds(ctx context.Context, ft *fitting, fit []*snapData, st0 *state, theta0 []float64, res *Result, logf func(string, ...any), reweight bool) error {
+	np := len(m.params)
+	var err error
+	for round := 0; ; round++ {
+		if countTrue(ft.free) == 0 {
+			res.Status = NothingToFit
+			ft.cur, ft.theta = st0, theta0
+			if ft.A != nil {
+				ft.scale = m.noiseFactors(ft.b, ft.J, ft.A, ft.cur.r, ft.free)
+				ft.cov = m.covariance(ft.b, ft.J, ft.A, ft.free, ft.scale)
+			}
+			return nil
+		}
+		ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations)
+		if err != nil {
+			return err
+		}
+		ft.scale = m.noiseFactors(ft.b, ft.J, ft.A, ft.cur.r, ft.free)
+		// Reweighting: each sensor weighed by what it really scatters,
+		// then the fit goes on from where it is.
+		for rw := 0; round == 0 && reweight && rw < maxReweights && m.reweight(ft.scale); rw++ {
+			ft.b = newBatch(fit, m.sens)
+			ft.A, ft.g = normal(ft.J, ft.b.w, ft.cur.r, np)
+			logf("calibration reweighted", "round", rw+1)
+			ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations)
+			if err != nil {
+				return err
+			}
+			ft.scale = m.noiseFactors(ft.b, ft.J, ft.A, ft.cur.r, ft.free)
+		}
+		ft.cov = m.covariance(ft.b, ft.J, ft.A, ft.free, ft.scale)
+		m.dayVariation(ft.b, ft.J, ft.cur.r, ft.theta, ft.free, ft.scale, ft.cov, res)
+		// Parameters whose standard error, with the residual noise, is
+		// still too large go back to their prior and the rest is refitted.
+		again := false
+		for i := range m.params {
+			if ft.free[i] && math.Sqrt(ft.cov.At(i, i)) > m.maxSE(i) {
+				ft.free[i] = false
+				ft.theta[i] = m.params[i].prior
+				again = true
+			}
+		}
+		if !again {
+			return nil
+		}
+		ft.cur, err = m.evaluate(ctx, ft.b, ft.theta, ft.cur, noTrial)
+		if err != nil {
+			return err
+		}
+		res.Evaluations++
+		if err := m.jacobian(ctx, ft.b, ft.cur, ft.J, nil, nil); err != nil {
+			return err
+		}
+		ft.A, ft.g = normal(ft.J, ft.b.w, ft.cur.r, np)
+		if round >= 2 {
+			ft.scale = m.noiseFactors(ft.b, ft.J, ft.A, ft.cur.r, ft.free)
+			ft.cov = m.covariance(ft.b, ft.J, ft.A, ft.free, ft.scale)
+			m.dayVariation(ft.b, ft.J, ft.cur.r, ft.theta, ft.free, ft.scale, ft.cov, res)
+			return nil
+		}
+	}
 }
 
 func countTrue(b []bool) int {
@@ -354,19 +412,60 @@ func (m *model) buildParams(locs []*time.Location) [][]int {
 }
 
 func (m *model) maxSE(i int) float64 {
-	if m.params[i].kind == Roughness {
+	switch m.params[i].kind {
+	case Roughness:
 		return m.set.MaxRoughnessSE
+	case pipeEffect:
+		// A pipe's own effect is bounded by its prior: never "not
+		// identified", never returned to the group's value for that.
+		return math.Inf(1)
 	}
 	return m.set.MaxMultiplierSE
 }
 
-// cost returns Σ w r² over the batch's rows.
+// cost returns Σ w r² over the batch's rows, with the fit's weights.
 func (b *batch) cost(r []float64) float64 {
 	var c float64
 	for i, v := range r {
 		c += b.w[i] * v * v
 	}
 	return c
+}
+
+// accCost returns Σ r²/σ² over the batch's rows, σ the sensors'
+// accuracy: the misfit the report states.
+func (b *batch) accCost(r []float64) float64 {
+	var c float64
+	for i, v := range r {
+		c += b.aw[i] * v * v
+	}
+	return c
+}
+
+// maxReweights is how many times the fit reweights its sensors: the
+// second pass finds factors within a few per cent of one (our
+// observation on the demo town), a third changes nothing that matters.
+const maxReweights = 2
+
+// reweight multiplies each observed sensor's variance factor by its
+// noise factor s² (≥ 1) from a converged fit, and reports whether any
+// changed by more than 10 % (otherwise the weights are left as they are).
+func (m *model) reweight(scale []float64) bool {
+	changed := false
+	for k := range m.sens {
+		if m.sens[k].role == roleObserve && scale[k] > 1.1 {
+			changed = true
+		}
+	}
+	if !changed {
+		return false
+	}
+	for k := range m.sens {
+		if m.sens[k].role == roleObserve {
+			m.sens[k].vf = m.sens[k].weightFactor() * scale[k]
+		}
+	}
+	return true
 }
 
 // normal returns JᵀWJ and JᵀWr.
@@ -390,14 +489,14 @@ func normal(J *mat.Dense, w, r []float64, np int) (*mat.SymDense, []float64) {
 
 // solveSet solves (A_S + P + λ·diag) δ_S = rhs_S on the index set S and
 // returns δ (zero outside S) and the inverse of the matrix when wantInv.
-func solveSet(A *mat.SymDense, rhs []float64, set []int, lambda float64) ([]float64, *mat.SymDense, bool) {
+func (m *model) solveSet(A *mat.SymDense, rhs []float64, set []int, lambda float64) ([]float64, *mat.SymDense, bool) {
 	n := len(set)
 	M := mat.NewSymDense(n, nil)
 	for a, i := range set {
 		for c := a; c < n; c++ {
 			M.SetSym(a, c, A.At(i, set[c]))
 		}
-		d := A.At(i, i) + 1/(priorSD*priorSD)
+		d := A.At(i, i) + m.params[i].precision()
 		M.SetSym(a, a, d+lambda*max(d, 1e-12))
 	}
 	var ch mat.Cholesky
@@ -437,7 +536,7 @@ func (m *model) identify(A *mat.SymDense, free []bool) {
 		if len(set) == 0 {
 			return
 		}
-		_, inv, ok := solveSet(A, make([]float64, len(free)), set, 0)
+		_, inv, ok := m.solveSet(A, make([]float64, len(free)), set, 0)
 		if !ok || inv == nil {
 			return
 		}
@@ -465,7 +564,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 		c := b.cost(st.r)
 		for i := range th {
 			if free[i] {
-				d := (th[i] - m.params[i].prior) / priorSD
+				d := (th[i] - m.params[i].prior) / m.params[i].priorSD()
 				c += d * d
 			}
 		}
@@ -479,7 +578,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 		// Gradient of −½ objective: JᵀWr − P(θ − prior).
 		rhs := make([]float64, np)
 		for i := range rhs {
-			rhs[i] = g[i] - (theta[i]-m.params[i].prior)/(priorSD*priorSD)
+			rhs[i] = g[i] - (theta[i]-m.params[i].prior)*m.params[i].precision()
 		}
 		var set []int
 		for i := range free {
@@ -501,7 +600,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 			if err := ctx.Err(); err != nil {
 				return nil, nil, nil, nil, err
 			}
-			delta, _, ok := solveSet(A, rhs, set, lambda)
+			delta, _, ok := m.solveSet(A, rhs, set, lambda)
 			if !ok {
 				lambda *= 10
 				if lambda > 1e12 {
@@ -573,7 +672,7 @@ func (m *model) noiseFactors(b *batch, J *mat.Dense, A *mat.SymDense, r []float6
 	den := make([]float64, len(m.sens))
 	var inv *mat.SymDense
 	if len(set) > 0 {
-		_, inv, _ = solveSet(A, make([]float64, len(free)), set, 0)
+		_, inv, _ = m.solveSet(A, make([]float64, len(free)), set, 0)
 	}
 	x := make([]float64, len(set))
 	for i := range r {
@@ -607,7 +706,8 @@ func (m *model) noiseFactors(b *batch, J *mat.Dense, A *mat.SymDense, r []float6
 }
 
 // covariance returns the covariance of the estimates: the sandwich
-// (JᵀWJ+P)⁻¹ (Σ w s² JᵀJ) (JᵀWJ+P)⁻¹ over the free parameters, with each
+// (JᵀWJ+P)⁻¹ (Σ w s² JᵀJ + P_δ) (JᵀWJ+P)⁻¹ over the free parameters
+// (P_δ the prior precision of the pipes' own roughness), with each
 // sensor's noise factor s², so that a sensor that fits worse than its
 // accuracy counts as the noisier instrument it is; for fixed parameters
 // the diagonal holds the variance they would have if freed alone, from
@@ -622,7 +722,7 @@ func (m *model) covariance(b *batch, J *mat.Dense, A *mat.SymDense, free []bool,
 		}
 	}
 	if len(set) > 0 {
-		_, inv, ok := solveSet(A, make([]float64, np), set, 0)
+		_, inv, ok := m.solveSet(A, make([]float64, np), set, 0)
 		if ok && inv != nil {
 			n := len(set)
 			Jw := mat.NewDense(b.rows, n, nil)
@@ -636,6 +736,15 @@ func (m *model) covariance(b *batch, J *mat.Dense, A *mat.SymDense, free []bool,
 			}
 			B := mat.NewSymDense(n, nil)
 			B.SymOuterK(1, Jw.T())
+			// A pipe's own roughness is a random departure from its
+			// group's, of the prior's spread: that spread is part of what
+			// the estimates vary with (Henderson's mixed-model equations),
+			// so its precision joins the data's information in the middle.
+			for a, i := range set {
+				if m.params[i].kind == pipeEffect {
+					B.SetSym(a, a, B.At(a, a)+m.params[i].precision())
+				}
+			}
 			var t, c mat.Dense
 			t.Mul(inv, B)
 			c.Mul(&t, inv)
@@ -651,7 +760,7 @@ func (m *model) covariance(b *batch, J *mat.Dense, A *mat.SymDense, free []bool,
 		if f {
 			continue
 		}
-		d := A.At(i, i) + 1/(priorSD*priorSD)
+		d := A.At(i, i) + m.params[i].precision()
 		var sc float64
 		var n float64
 		for k, s := range scale {
@@ -771,7 +880,11 @@ func (m *model) report(theta []float64, free []bool, A *mat.SymDense, cov *mat.S
 	if m.net.Headloss == network.DarcyWeisbach {
 		unit = "mm"
 	}
+	out = out[:0]
 	for i, pr := range m.params {
+		if pr.kind == pipeEffect {
+			continue
+		}
 		se := math.Sqrt(math.Max(0, cov.At(i, i)))
 		p := Parameter{Name: pr.name, Kind: pr.kind, Identifiable: free[i]}
 		const eps = 1e-9
@@ -806,7 +919,7 @@ func (m *model) report(theta []float64, free []bool, A *mat.SymDense, cov *mat.S
 				}
 			}
 		}
-		out[i] = p
+		out = append(out, p)
 	}
 	_ = A
 	return out
@@ -840,7 +953,7 @@ func (m *model) sensorFits(b *batch, before, after []float64, scale []float64) [
 			After:  FitStats{Count: a.n, RMSE: math.Sqrt(a.qa / n), Bias: a.sa / n},
 		}
 		if scale != nil {
-			f.NoiseFactor = math.Sqrt(scale[k])
+			f.NoiseFactor = math.Sqrt(scale[k] * si.weightFactor())
 		}
 		out = append(out, f)
 	}
@@ -863,8 +976,18 @@ func zoneLabel(zone, pattern string, many bool) string {
 func (m *model) calibrated(theta []float64, free []bool, locs []*time.Location, warn func(string)) *network.Network {
 	out := m.net.Clone()
 	for l, p := range m.linkPar {
-		if p >= 0 && free[p] {
-			out.Links[l].Roughness = m.rough0[l] * math.Exp(theta[p])
+		if p < 0 {
+			continue
+		}
+		v := 0.0
+		if free[p] {
+			v = theta[p]
+		}
+		if d := m.devOf(theta, l); d != 0 && free[m.linkDev[l]] {
+			v += d
+		}
+		if v != 0 {
+			out.Links[l].Roughness = m.rough0[l] * math.Exp(v)
 		}
 	}
 	step := out.PatternStep

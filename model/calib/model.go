@@ -23,13 +23,35 @@ const hwExp = 1.852
 // multiplier for one hour knot (DemandMultiplier).
 type param struct {
 	kind   Kind
-	group  int // Roughness: index into model.groups
+	group  int // Roughness and pipeEffect: index into model.groups
+	link   int // pipeEffect: the pipe
 	zone   int // DemandMultiplier: index into model.zones
 	day    int // 0 weekday (or every day), 1 weekend
 	hour   int
 	lo, hi float64
 	prior  float64
-	name   string
+	// sd is the prior's standard deviation; 0 means priorSD.
+	sd   float64
+	name string
+}
+
+// pipeEffect is the kind of a pipe's own log-multiplier of roughness
+// about its group's (Settings.PipeSpread): internal, never reported as a
+// Parameter.
+const pipeEffect Kind = 100
+
+// priorSD returns the standard deviation of the parameter's prior.
+func (p *param) priorSD() float64 {
+	if p.sd > 0 {
+		return p.sd
+	}
+	return priorSD
+}
+
+// precision returns 1/priorSD².
+func (p *param) precision() float64 {
+	s := p.priorSD()
+	return 1 / (s * s)
 }
 
 // snapData is one snapshot prepared for the model.
@@ -52,7 +74,8 @@ type batch struct {
 	snaps []*snapData
 	first []int // per snapshot: its first row
 	rows  int
-	w     []float64 // per row: 1/σ²
+	w     []float64 // per row: the fit's weight, 1/(σ² v) (v: the sensor's variance factor)
+	aw    []float64 // per row: 1/σ², by accuracy alone (reported misfits)
 	sen   []int     // per row: sensor index
 	y     []float64 // per row: measured value
 	snap  []int     // per row: snapshot index in the batch
@@ -64,7 +87,9 @@ func newBatch(snaps []*snapData, sens []sensorInfo) *batch {
 	for si, s := range snaps {
 		b.first[si] = b.rows
 		for _, k := range s.obs {
-			b.w = append(b.w, 1/(sens[k].sigma*sens[k].sigma))
+			a := 1 / (sens[k].sigma * sens[k].sigma)
+			b.aw = append(b.aw, a)
+			b.w = append(b.w, a/sens[k].weightFactor())
 			b.sen = append(b.sen, k)
 			b.y = append(b.y, s.y[k])
 			b.snap = append(b.snap, si)
@@ -76,16 +101,18 @@ func newBatch(snaps []*snapData, sens []sensorInfo) *batch {
 
 // model holds everything a fit evaluates.
 type model struct {
-	net     *network.Network
-	set     Settings
-	sens    []sensorInfo
-	groups  []group
-	params  []param
-	zones   []string
-	zoneOf  []int // node → zone index or −1
-	rough0  []float64
-	gparam  []int // group → parameter index or −1
-	linkPar []int // link → roughness parameter index or −1
+	net      *network.Network
+	set      Settings
+	sens     []sensorInfo
+	groups   []group
+	params   []param
+	zones    []string
+	zoneOf   []int // node → zone index or −1
+	rough0   []float64
+	gparam   []int // group → parameter index or −1
+	linkPar  []int // link → roughness parameter index or −1
+	linkDev  []int // link → its own pipeEffect parameter index or −1 (nil: none)
+	devLinks []int // the links with a pipeEffect, in link order
 }
 
 // state is the model evaluated at one parameter vector: the solvers
@@ -112,10 +139,19 @@ func (m *model) netFor(theta []float64) *network.Network {
 	n := m.net.Clone()
 	for l, p := range m.linkPar {
 		if p >= 0 {
-			n.Links[l].Roughness = m.rough0[l] * math.Exp(theta[p])
+			n.Links[l].Roughness = m.rough0[l] * math.Exp(theta[p]+m.devOf(theta, l))
 		}
 	}
 	return n
+}
+
+// devOf returns pipe l's own log-multiplier of roughness in theta (0
+// without one).
+func (m *model) devOf(theta []float64, l int) float64 {
+	if m.linkDev == nil || m.linkDev[l] < 0 {
+		return 0
+	}
+	return theta[m.linkDev[l]]
 }
 
 // knot returns a multiplier parameter's value, 1 when idx < 0.
@@ -344,6 +380,9 @@ func (m *model) jacWorker(ctx context.Context, b *batch, st *state, J *mat.Dense
 				if m.params[p].kind == Roughness {
 					row[p] = v
 				}
+			}
+			for _, l := range m.devLinks {
+				row[m.linkDev[l]] = res[l] * e[l]
 			}
 			for z := range zsum {
 				zsum[z] = 0

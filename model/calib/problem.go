@@ -31,6 +31,20 @@ type Problem struct {
 	// the hour bins of a zone are local hours there. A nil map or a
 	// missing zone means UTC.
 	Zones map[string]*time.Location
+	// Balances names, per zone, the flow meters of its water balance (the
+	// service configuration's inlets and outlets). Fit does not use them;
+	// with them Evaluate compares readings with the inflow-matched model,
+	// as the detector does (see Evaluate).
+	Balances map[string]ZoneMeters
+}
+
+// ZoneMeters are the flow sensors (ids) of one zone's water balance. A
+// meter is oriented by its link: flow towards a node of the zone is
+// inflow; a meter on a link that does not cross the zone's boundary
+// counts its flow as inflow when listed among the inlets, as outflow
+// among the outlets (as model/detect orients them).
+type ZoneMeters struct {
+	Inlets, Outlets []string
 }
 
 // Settings tune a fit. The zero value means the documented defaults.
@@ -77,6 +91,18 @@ type Settings struct {
 	DayVariation float64
 	// NoPatterns and NoRoughness leave one kind of parameter out.
 	NoPatterns, NoRoughness bool
+	// PipeSpread is the standard deviation of one pipe's roughness about
+	// its group's (of ln C, or ln ε), for the pipes the readings see one by one
+	// (see the package doc); default 0.15. Pipes of one material and
+	// age differ by some 10-20 % in C from one to the next in field
+	// tests, and an internal diameter off its record moves the head loss
+	// as a roughness change would (from memory). A negative value gives
+	// no pipe its own roughness.
+	PipeSpread float64
+	// NoReweight keeps the weights of the sensors' accuracy through the
+	// fit instead of dividing each sensor's by its noise factor after a
+	// first convergence and fitting again (see the package doc).
+	NoReweight bool
 	// MaxRoughnessSE is the largest standard error of a roughness
 	// log-multiplier that still counts as identified; default 0.2 (a
 	// 95 % band of about ±40 % of C, our choice).
@@ -145,6 +171,9 @@ func (s Settings) withDefaults() Settings {
 	if s.MaxMultiplierSE <= 0 {
 		s.MaxMultiplierSE = 0.2
 	}
+	if s.PipeSpread == 0 {
+		s.PipeSpread = 0.15
+	}
 	if s.SuspectFactor <= 1 {
 		s.SuspectFactor = 10
 	}
@@ -182,7 +211,10 @@ type sensorInfo struct {
 	link  int // link index or -1
 	role  role
 	sigma float64 // one standard deviation, canonical units
-	pump  bool    // flow sensor on a pump: also switches it
+	// vf is the variance factor of the fit's weights (1/(σ² vf)): 1, or
+	// the noise factor a first fit found (Fit's reweighting).
+	vf   float64
+	pump bool // flow sensor on a pump: also switches it
 	// pumpOff: a pump reading below this (L/s) is stopped.
 	pumpOff float64
 }
@@ -280,6 +312,9 @@ func resolveSensors(net *network.Network, sens []telemetry.Sensor, snaps []telem
 	}
 	return out
 }
+
+// weightFactor returns the sensor's variance factor (at least 1).
+func (si *sensorInfo) weightFactor() float64 { return max(1, si.vf) }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 

@@ -56,6 +56,21 @@ func (r *Result) WriteText(w io.Writer) error {
 	if len(unident) > 0 {
 		fmt.Fprintf(&b, "\nNot identifiable from these readings (left at the recorded value): %s\n", strings.Join(unident, ", "))
 	}
+	if len(r.PipeEffects) > 0 {
+		fmt.Fprintf(&b, "\nPipes the readings see one by one, fitted about their group (factor on the group's roughness; the pipe's own roughness):\n")
+		tw := tabwriter.NewWriter(&b, 2, 4, 2, ' ', 0)
+		fmt.Fprintln(tw, "pipe\tgroup\tfactor\t± s.e.\tprior\testimate\t± s.e.\tnote")
+		for _, p := range r.PipeEffects {
+			note := ""
+			if p.AtBound {
+				note = "at bound: more than roughness?"
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%.3f\t%.2g\t%.4g\t%.4g\t%.2g\t%s\n", p.Link, p.Group, p.Factor, p.StdErr, p.Prior, p.Estimate, p.EstimateStdErr, note)
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
 
 	writeSensors := func(title string, fits []SensorFit) error {
 		fmt.Fprintf(&b, "\n%s\n", title)

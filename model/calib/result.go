@@ -105,6 +105,27 @@ type Parameter struct {
 	CorrelatedWith string  `json:"correlated_with,omitempty"`
 }
 
+// PipeEffect is one pipe whose roughness was fitted about its group's:
+// the readings see it one by one (Settings.PipeSpread).
+type PipeEffect struct {
+	Link  string `json:"link"`
+	Group string `json:"group"`
+	// Factor multiplies the group's fitted roughness (C, or ε) for this
+	// pipe; StdErr is its standard error.
+	Factor float64 `json:"factor"`
+	StdErr float64 `json:"std_err"`
+	// Prior is the pipe's recorded roughness, Estimate its fitted one
+	// (group and own factor together) and EstimateStdErr that one's
+	// standard error, in the group's unit.
+	Prior          float64 `json:"prior"`
+	Estimate       float64 `json:"estimate"`
+	EstimateStdErr float64 `json:"estimate_std_err"`
+	// AtBound: the own factor lies on its bound (three prior standard
+	// deviations): something other than roughness may be at work there,
+	// such as a valve left partly shut.
+	AtBound bool `json:"at_bound"`
+}
+
 // FitStats are one sensor's residuals (measured − modelled) over a set
 // of snapshots, canonical units.
 type FitStats struct {
@@ -179,9 +200,12 @@ type Result struct {
 	DayVariation     float64     `json:"day_variation"`
 	DayVariationUsed float64     `json:"day_variation_used"`
 	Parameters       []Parameter `json:"parameters"`
-	Sensors          []SensorFit `json:"sensors"`
-	Validation       Validation  `json:"validation"`
-	Suspects         []Suspect   `json:"suspects"`
+	// PipeEffects are the pipes given their own roughness about their
+	// group's, the largest departure first.
+	PipeEffects []PipeEffect `json:"pipe_effects,omitempty"`
+	Sensors     []SensorFit  `json:"sensors"`
+	Validation  Validation   `json:"validation"`
+	Suspects    []Suspect    `json:"suspects"`
 	// Warnings name the inputs left out (sensors, snapshots) and other
 	// things a reader should know.
 	Warnings []string `json:"warnings,omitempty"`

@@ -154,13 +154,13 @@ func (m *model) suspects(ctx context.Context, b *batch, cur *state, priorScreen 
 		for i, f := range free {
 			if f {
 				set = append(set, i)
-				g[i] -= (cur.theta[i] - m.params[i].prior) / (priorSD * priorSD)
+				g[i] -= (cur.theta[i] - m.params[i].prior) * m.params[i].precision()
 			}
 		}
 		if len(set) == 0 {
 			return st, nil
 		}
-		delta, _, ok := solveSet(A, g, set, refitDamping)
+		delta, _, ok := m.solveSet(A, g, set, refitDamping)
 		if !ok {
 			return st, nil
 		}
