@@ -397,7 +397,10 @@ func (s *Solver) residuals(sol *Solution, all bool) float64 {
 			s.F[i], s.leakD[i] = 0, 0
 			continue
 		}
-		q, dq := s.leakAt(i, sol.Head[i], sol, all)
+		q, dq := 0.0, 0.0
+		if s.net.Nodes[i].LeakCoeff != 0 || sol.leakC[i] != 0 {
+			q, dq = s.leakAt(i, sol.Head[i], sol, all)
+		}
 		s.F[i] = -sol.Demand[i] - q
 		s.leakD[i] = dq
 	}
@@ -451,7 +454,20 @@ func (s *Solver) coefficients(sol *Solution) {
 			s.p[k], s.y[k] = 0, 0
 			s.ctrl[k], _ = s.controlled(k, sol)
 		default:
-			h, g, sc := s.lawOpen(k, q, sol)
+			var h, g, sc float64
+			if m.kind == lkPipe && !m.dw {
+				// lawOpen's Hazen-Williams case, inline: the same
+				// operations in the same order, for the most common link.
+				aq := math.Abs(q)
+				t := m.hwR * hwPow(aq)
+				h, g = t*q, hwFlowExp*t
+				h += m.minor * q * aq
+				g += 2 * m.minor * aq
+				f := sol.factor[k]
+				h, g, sc = f*h+gMin*q, f*g+gMin, f*h
+			} else {
+				h, g, sc = s.lawOpen(k, q, sol)
+			}
 			s.p[k] = 1 / g
 			s.y[k] = (h - dh) / g
 			s.s[k] = sc

@@ -179,3 +179,59 @@ func TestSolveIntoAllocatesNothing(t *testing.T) {
 		t.Errorf("warm SolveInto into its warm start: %v allocations, want 0", allocs)
 	}
 }
+
+// The Newton coefficients of Hazen-Williams pipes, computed inline in
+// coefficients, are those of the link law lawOpen (the reference) bit for
+// bit, with minor losses and resistance factors, at flows of both signs,
+// tiny and zero.
+func TestCoefficientsInlineIsLaw(t *testing.T) {
+	net, err := netgen.Town(netgen.Options{Junctions: 300, Seed: 4})
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := rand.New(rand.NewPCG(5, 6))
+	for k := range net.Links {
+		net.Links[k].MinorLoss = 3 * r.Float64()
+	}
+	s, err := NewSolver(net, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := &Conditions{ResistanceFactor: make([]float64, len(net.Links))}
+	for k := range c.ResistanceFactor {
+		c.ResistanceFactor[k] = 0.5 + 3*r.Float64()
+	}
+	sol, err := s.Solve(c, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pipes := 0
+	for trial := 0; trial < 20; trial++ {
+		for k := range sol.Flow {
+			switch k % 5 {
+			case 0:
+				sol.Flow[k] = 0
+			case 1:
+				sol.Flow[k] = -1e-9 * r.Float64()
+			default:
+				sol.Flow[k] = 100 * (r.Float64() - 0.5)
+			}
+		}
+		s.coefficients(sol)
+		for k := range s.lm {
+			m := &s.lm[k]
+			if m.kind != lkPipe || m.dw || sol.State[k] != Open {
+				continue
+			}
+			pipes++
+			h, g, sc := s.lawOpen(k, sol.Flow[k], sol)
+			dh := sol.Head[m.from] - sol.Head[m.to]
+			if s.p[k] != 1/g || s.y[k] != (h-dh)/g || s.s[k] != sc {
+				t.Fatalf("link %d at %g L/s: p, y, s = %v %v %v, law gives %v %v %v", k, sol.Flow[k], s.p[k], s.y[k], s.s[k], 1/g, (h-dh)/g, sc)
+			}
+		}
+	}
+	if pipes == 0 {
+		t.Fatal("no open Hazen-Williams pipe checked")
+	}
+}

@@ -31,16 +31,24 @@ const simplicialMaxFlopsPerColumn = 250
 // paths from the nonzeros of A's row k up to k (Liu 1990, §5). L is
 // stored by columns, each column's diagonal first and its other rows
 // ascending.
+//
+// Indices are int32 (so the method is only chosen below 2³¹ stored
+// entries, simplicialFits): the structure is then half the memory to
+// stream through at every factorisation.
 type simplicial struct {
-	colPtr []int // column j of L at colPtr[j] .. colPtr[j+1]-1; the diagonal first
-	rowIdx []int // row of each stored entry
-	// Row k of L below the diagonal: columns rowCol[rowPtr[k]:rowPtr[k+1]],
-	// ascending, with the storage position of L(k, column) in rowPos.
-	rowPtr, rowCol, rowPos []int
+	colPtr []int32 // column j of L at colPtr[j] .. colPtr[j+1]-1; the diagonal first
+	rowIdx []int32 // row of each stored entry
+	// Row k of L below the diagonal: rowPtr[k] .. rowPtr[k+1]-1 of row,
+	// ascending by column.
+	rowPtr []int32
+	row    []rowEntry
 	// Row k of the permuted A below the diagonal: input entries
 	// aEnt[aPtr[k]:aPtr[k+1]] at columns aCol.
-	aPtr, aCol, aEnt []int
+	aPtr, aCol, aEnt []int32
 }
+
+// rowEntry is L(k, col) of a row k, stored at values[pos].
+type rowEntry struct{ col, pos int32 }
 
 // flopsPerColumn returns the multiply-adds of a Cholesky factorisation
 // with the given column counts (Σ (count−1)², the updates of each
@@ -60,44 +68,44 @@ func flopsPerColumn(counts []int) float64 {
 // permuted pattern (pptr, padj) with elimination tree parent and the
 // input entries (rows, cols) under iperm.
 func newSimplicial(n int, pptr, padj, parent []int, rows, cols, iperm []int, counts []int) *simplicial {
-	s := &simplicial{colPtr: make([]int, n+1)}
+	s := &simplicial{colPtr: make([]int32, n+1)}
 	for j := 0; j < n; j++ {
-		s.colPtr[j+1] = s.colPtr[j] + counts[j]
+		s.colPtr[j+1] = s.colPtr[j] + int32(counts[j])
 	}
 	nnz := s.colPtr[n]
-	s.rowIdx = make([]int, nnz)
-	next := make([]int, n) // next free position of each column
+	s.rowIdx = make([]int32, nnz)
+	next := make([]int32, n) // next free position of each column
 	for j := 0; j < n; j++ {
-		s.rowIdx[s.colPtr[j]] = j
+		s.rowIdx[s.colPtr[j]] = int32(j)
 		next[j] = s.colPtr[j] + 1
 	}
-	s.rowPtr = make([]int, n+1)
-	s.rowCol = make([]int, 0, nnz-n)
-	s.rowPos = make([]int, 0, nnz-n)
+	s.rowPtr = make([]int32, n+1)
+	s.row = make([]rowEntry, 0, int(nnz)-n)
 	mark := make([]int, n)
 	for i := range mark {
 		mark[i] = -1
 	}
+	var pat []int
 	for k := 0; k < n; k++ {
-		start := len(s.rowCol)
+		pat = pat[:0]
 		mark[k] = k
 		for _, i := range padj[pptr[k]:pptr[k+1]] {
 			for x := i; x < k && mark[x] != k; x = parent[x] {
 				mark[x] = k
-				s.rowCol = append(s.rowCol, x)
+				pat = append(pat, x)
 			}
 		}
-		slices.Sort(s.rowCol[start:])
-		for _, j := range s.rowCol[start:] {
+		slices.Sort(pat)
+		for _, j := range pat {
 			p := next[j]
 			next[j]++
-			s.rowIdx[p] = k
-			s.rowPos = append(s.rowPos, p)
+			s.rowIdx[p] = int32(k)
+			s.row = append(s.row, rowEntry{col: int32(j), pos: p})
 		}
-		s.rowPtr[k+1] = len(s.rowCol)
+		s.rowPtr[k+1] = int32(len(s.row))
 	}
 	// A's entries by permuted row, the larger index of each pair.
-	s.aPtr = make([]int, n+1)
+	s.aPtr = make([]int32, n+1)
 	for e := range rows {
 		a, b := iperm[rows[e]], iperm[cols[e]]
 		s.aPtr[max(a, b)+1]++
@@ -105,18 +113,22 @@ func newSimplicial(n int, pptr, padj, parent []int, rows, cols, iperm []int, cou
 	for k := 0; k < n; k++ {
 		s.aPtr[k+1] += s.aPtr[k]
 	}
-	s.aCol = make([]int, len(rows))
-	s.aEnt = make([]int, len(rows))
+	s.aCol = make([]int32, len(rows))
+	s.aEnt = make([]int32, len(rows))
 	fill := slices.Clone(s.aPtr[:n])
 	for e := range rows {
 		a, b := iperm[rows[e]], iperm[cols[e]]
 		k := max(a, b)
-		s.aCol[fill[k]] = min(a, b)
-		s.aEnt[fill[k]] = e
+		s.aCol[fill[k]] = int32(min(a, b))
+		s.aEnt[fill[k]] = int32(e)
 		fill[k]++
 	}
 	return s
 }
+
+// simplicialFits reports whether a factor of nnzL entries and an input
+// of nIn entries can be indexed by the simplicial structure's int32s.
+func simplicialFits(nnzL, nIn int) bool { return nnzL < 1<<31-1 && nIn < 1<<31-1 }
 
 // factorSimplicial computes L row by row into f.values (laid out as
 // s.simp) and returns the permuted column of the first failed pivot, or
@@ -125,6 +137,7 @@ func (f *Factor) factorSimplicial(diag, offdiag []float64) int {
 	s := f.sym
 	sp := s.simp
 	L, x := f.values, f.x
+	colPtr, rowIdx := sp.colPtr, sp.rowIdx
 	for k := 0; k < s.n; k++ {
 		x[k] = diag[s.perm[k]]
 		for q := sp.aPtr[k]; q < sp.aPtr[k+1]; q++ {
@@ -132,36 +145,30 @@ func (f *Factor) factorSimplicial(diag, offdiag []float64) int {
 		}
 		d := x[k]
 		x[k] = 0
-		cols := sp.rowCol[sp.rowPtr[k]:sp.rowPtr[k+1]]
-		pos := sp.rowPos[sp.rowPtr[k]:sp.rowPtr[k+1]]
-		pos = pos[:len(cols)]
-		for t, j := range cols {
+		row := sp.row[sp.rowPtr[k]:sp.rowPtr[k+1]]
+		for _, e := range row {
 			// L(k, j) = (x_j − Σ_{i<j} L(k,i) L(j,i)) / L(j,j); the sum was
 			// subtracted from x_j as the earlier columns were done.
-			c0 := sp.colPtr[j]
+			j := e.col
+			c0 := colPtr[j]
 			lkj := x[j] / L[c0]
 			x[j] = 0
-			p := pos[t]
 			// Column j's entries in rows between j and k update those rows
 			// of row k.
-			rows := sp.rowIdx[c0+1 : p]
-			vals := L[c0+1 : p]
+			rows := rowIdx[c0+1 : e.pos]
+			vals := L[c0+1 : e.pos]
 			vals = vals[:len(rows)]
 			for i, r := range rows {
 				x[r] -= vals[i] * lkj
 			}
 			d -= lkj * lkj
-			L[p] = lkj
+			L[e.pos] = lkj
 		}
 		if !(d > 0) || math.IsInf(d, 1) {
-			// Leave x zero for the next call.
-			for _, j := range cols {
-				x[j] = 0
-			}
 			f.ws[0].pivot = d
 			return k
 		}
-		L[sp.colPtr[k]] = math.Sqrt(d)
+		L[colPtr[k]] = math.Sqrt(d)
 	}
 	return -1
 }

@@ -82,7 +82,7 @@ func analyzeOrdered(n int, rows, cols []int, ptr, adj, order []int, m method) *S
 		fill[sn[e]]++
 	}
 	s.flopsPerCol = flopsPerColumn(counts)
-	if m == methodSimplicial || m == methodAuto && s.flopsPerCol <= simplicialMaxFlopsPerColumn {
+	if simplicialFits(nnzL, len(rows)) && (m == methodSimplicial || m == methodAuto && s.flopsPerCol <= simplicialMaxFlopsPerColumn) {
 		s.simp = newSimplicial(n, pptr, padj, parent, rows, cols, iperm, counts)
 	}
 	return s
