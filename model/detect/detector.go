@@ -127,6 +127,8 @@ type sensorState struct {
 	BadSteps  int
 	Spikes    []time.Time
 	Quiet     int // consecutive quiet hours while excluded
+	// OKAt is the last step with a reading ingest found in order.
+	OKAt time.Time
 	// Good and GoodAt are a flow meter's last usable value and its step.
 	Good   float64
 	GoodAt time.Time
@@ -165,8 +167,9 @@ type zoneState struct {
 	// Storm counts the consecutive steps in which most of the zone's
 	// loggers read out of range together (pressureLoss); StormAt is when
 	// the last such event was raised.
-	Storm   int
-	StormAt time.Time
+	Storm      int
+	StormAt    time.Time
+	StormStart time.Time
 	// Scale is the hourly mean of the zone's inflow-matched demand over
 	// its base demand: the operating point of each hour of evidence.
 	Scale ring
@@ -1008,6 +1011,9 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 			}
 			continue
 		}
+		if usable(a) {
+			ss.OKAt = snap.Step
+		}
 		reason := ""
 		switch a.Quality {
 		case telemetry.Stuck, telemetry.OutOfRange:
@@ -1062,21 +1068,32 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 func (d *Detector) pressureLoss(snap telemetry.Snapshot) []bool {
 	storm := make([]bool, len(d.zones))
 	for zi := range d.zones {
+		zs := &d.st.Zones[zi]
+		start := snap.Step
+		if zs.Storm > 0 {
+			start = zs.StormStart
+		}
 		out, inUse := 0, 0
 		for _, si := range d.zones[zi].evidence {
-			if d.st.Sensors[si].Excluded {
+			ss := &d.st.Sensors[si]
+			if ss.Excluded {
 				continue
 			}
 			inUse++
-			if snap.Values[si].Quality == telemetry.OutOfRange {
+			// Only a logger that read in range within the day before counts:
+			// loggers out of range from the start are misconfigured, each a
+			// sensor fault of its own.
+			if snap.Values[si].Quality == telemetry.OutOfRange && !ss.OKAt.IsZero() && start.Sub(ss.OKAt) < 24*time.Hour {
 				out++
 			}
 		}
 		storm[zi] = out >= 3 && 2*out >= inUse
-		zs := &d.st.Zones[zi]
 		if !storm[zi] {
 			zs.Storm = 0
 			continue
+		}
+		if zs.Storm == 0 {
+			zs.StormStart = snap.Step
 		}
 		zs.Storm++
 	}

@@ -423,3 +423,33 @@ func TestTwoLeaksAtOnceAreTwoFindings(t *testing.T) {
 		t.Errorf("%d leak findings, near J-05 %v, near J-50 %v: want two, one near each", leaks, near["J-05"], near["J-50"])
 	}
 }
+
+// Loggers out of range from their first reading (a range or unit set
+// wrong in the configuration) never showed the zone's normal: each is a
+// sensor fault, not a loss of pressure.
+func TestLoggersOutOfRangeFromTheStartAreSensorFaults(t *testing.T) {
+	net := gridTown()
+	snaps := simulate(t, net, 2, 8, nil)
+	sensors := gridSensors()
+	for k := range snaps {
+		for i := range snaps[k].Values {
+			if sensors[i].Quantity == telemetry.Pressure {
+				snaps[k].Values[i].Quality = telemetry.OutOfRange
+			}
+		}
+	}
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	faults := 0
+	for _, f := range detectAll(t, d, snaps) {
+		if f.Kind != finding.SensorFault {
+			t.Errorf("a %s raised for misconfigured loggers: %s", f.Kind, f.Evidence)
+		}
+		faults++
+	}
+	if faults != 8 {
+		t.Errorf("%d sensor faults, want one per logger (8)", faults)
+	}
+}
