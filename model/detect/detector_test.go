@@ -453,3 +453,33 @@ func TestLoggersOutOfRangeFromTheStartAreSensorFaults(t *testing.T) {
 		t.Errorf("%d sensor faults, want one per logger (8)", faults)
 	}
 }
+
+// A leak that keeps growing (a crack opening, 4 L/s reached over four
+// days at J-43): each growth past the threshold is the same leak at the
+// same place, so one leak finding, updated as it grows, and no second.
+func TestGrowingLeakIsOneFinding(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(8*24*time.Hour + 13*time.Hour)
+	snaps := simulate(t, net, 14, 9, []sim.Event{{Kind: finding.Leak, At: "J-43", Start: start, SizeLPS: 4, Ramp: 96 * time.Hour, Exponent: 1}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var leaks []finding.Finding
+	for _, f := range detectAll(t, d, snaps) {
+		t.Logf("%s %s %.2f L/s %v", f.Kind, f.Raised.Format(time.RFC3339), f.SizeLPS, f.Candidates)
+		if f.Kind == finding.Leak {
+			leaks = append(leaks, f)
+		} else {
+			t.Errorf("a %s raised for a growing leak: %s", f.Kind, f.Evidence)
+		}
+	}
+	if len(leaks) != 1 {
+		t.Fatalf("%d leak findings raised, want 1", len(leaks))
+	}
+	final := d.Findings()[0]
+	t.Logf("first %.2f L/s, last %.2f L/s: %s", leaks[0].SizeLPS, final.SizeLPS, final.Evidence)
+	if final.SizeLPS <= leaks[0].SizeLPS {
+		t.Errorf("size %.2f L/s did not grow from %.2f", final.SizeLPS, leaks[0].SizeLPS)
+	}
+}

@@ -498,14 +498,12 @@ func (d *Detector) acceptAll(zi int, ev evidence, leak float64, now time.Time, w
 // reports, updates that one (and then it moves no baseline: *leak = 0).
 func (d *Detector) takeIn(zi int, ev evidence, now time.Time, watch bool, f finding.Finding, leak *float64) {
 	if i, ok := d.sameEvent(f); ok {
+		old := &d.st.Findings[i]
 		// The change is the one an open finding already reports (a
 		// blockage's effect grows and shrinks with the day's flows): the
 		// finding is updated, not raised again.
-		old := &d.st.Findings[i]
 		old.Candidates, old.Evidence = f.Candidates, f.Evidence+" (update)"
-		if f.Kind == finding.Blockage {
-			old.OpenFrac = f.OpenFrac
-		}
+		old.OpenFrac = f.OpenFrac
 		d.updated = append(d.updated, *old)
 		*leak = 0
 		return
@@ -585,7 +583,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.meterFault(zi, ev, onset, now, why+", but pressures did not fall as a leak of that size would")
 		return true
 	}
-	if d.raisePair(zi, ev, sg, size, onset, now, why) {
+	if d.grownLeak(zi, ev, sg, size, now, why) || d.raisePair(zi, ev, sg, size, onset, now, why) {
 		return true
 	}
 	for i, r := range top {
@@ -595,6 +593,43 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		why, onset.UTC().Format("2006-01-02 15:04"), describeResiduals(d, ev, 3), f.Candidates[0].ID)
 	d.accept(zi, ev, size, now, f)
 	return true
+}
+
+// grownLeak asks whether more water lost in zone zi (q L/s, the evidence
+// ev) is an open leak of the zone growing (a crack opening) rather than a
+// second leak: it is when a leak of q at the open leak's best place fits
+// the residuals within 2 + 2·ln N of the best place of the zone (the
+// margin by which pairFit wants a second place; N the zone's junctions).
+// The open leak then grows by q, and true is returned.
+func (d *Detector) grownLeak(zi int, ev evidence, sg *signatures, q float64, now time.Time, why string) bool {
+	fits := d.leakFits(zi, ev, sg, q)
+	best := math.Inf(1)
+	at := map[int]float64{}
+	for _, r := range fits {
+		best = math.Min(best, r.sse)
+		at[r.idx] = r.sse
+	}
+	margin := 2 + 2*math.Log(float64(max(len(d.zones[zi].junctions), 1)))
+	for i := len(d.st.Findings) - 1; i >= 0; i-- {
+		g := &d.st.Findings[i]
+		if g.Kind != finding.Leak || g.Zone != d.zones[zi].z.ID || len(g.Candidates) == 0 || (i < len(d.st.Resolved) && d.st.Resolved[i]) {
+			continue
+		}
+		j, ok := d.net.NodeIndex(g.Candidates[0].ID)
+		if !ok {
+			continue
+		}
+		if sse, ok := at[j]; !ok || sse-best > margin {
+			continue
+		}
+		d.tracef("%s zone %s: leak at %s grew by %.2f L/s (misfit %.1f there, %.1f at the best place)", now.UTC().Format(time.RFC3339), g.Zone, g.Candidates[0].ID, q, at[j], best)
+		g.Evidence = fmt.Sprintf("%s | grew by %.2f L/s at %s: %s", g.Evidence, q, now.UTC().Format("2006-01-02 15:04"), why)
+		g.SizeLPS = round2(g.SizeLPS + q)
+		d.updated = append(d.updated, *g)
+		d.settle(zi, q, now)
+		return true
+	}
+	return false
 }
 
 // raisePair raises two leak findings in place of one when pairFit finds
@@ -917,8 +952,11 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		if ev.dI > 0 {
 			size = ev.dI // the balance measures a leak better than the pressures do
 		}
-		if hy.sg != nil && d.raisePair(zi, ev, hy.sg, size, onset, now, fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)) {
-			return true
+		if hy.sg != nil {
+			why := fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)
+			if d.grownLeak(zi, ev, hy.sg, size, now, why) || d.raisePair(zi, ev, hy.sg, size, onset, now, why) {
+				return true
+			}
 		}
 		f := finding.Finding{Kind: finding.Leak, Zone: zone, Onset: onset, Raised: now, SizeLPS: round2(size)}
 		for i, r := range lTop {
@@ -956,9 +994,9 @@ func changePoint(r *ring, lo time.Time, dir float64, fallback time.Time) time.Ti
 	return at
 }
 
-// sameEvent finds an active blockage of the same zone whose best
-// candidates overlap f's: the same constriction seen again. Leaks are not
-// merged: a second leak in a zone adds to the first.
+// sameEvent finds an open blockage of the same zone whose best
+// candidates (three) overlap f's: the same constriction seen again.
+// Leaks are matched by grownLeak instead.
 func (d *Detector) sameEvent(f finding.Finding) (int, bool) {
 	if f.Kind != finding.Blockage {
 		return 0, false
