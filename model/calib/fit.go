@@ -248,7 +248,13 @@ func (m *model) fitRounds(ctx context.Context, ft *fitting, fit []*snapData, st0
 			}
 			return nil
 		}
-		ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations)
+		// A fit that only serves to measure the sensors' scatter before
+		// they are reweighted need not be as tight.
+		tol := 0.0
+		if round == 0 && reweight {
+			tol = math.Max(m.set.Tolerance, preReweightTolerance)
+		}
+		ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations, tol)
 		if err != nil {
 			return err
 		}
@@ -259,7 +265,7 @@ func (m *model) fitRounds(ctx context.Context, ft *fitting, fit []*snapData, st0
 			ft.b = newBatch(fit, m.sens)
 			ft.A, ft.g = normal(ft.J, ft.b.w, ft.cur.r, np)
 			logf("calibration reweighted", "round", rw+1)
-			ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations)
+			ft.cur, ft.theta, ft.A, ft.g, err = m.levenberg(ctx, ft.b, ft.cur, ft.theta, ft.free, ft.J, ft.A, ft.g, res, logf, noTrial, m.set.MaxIterations, 0)
 			if err != nil {
 				return err
 			}
@@ -442,6 +448,12 @@ func (b *batch) accCost(r []float64) float64 {
 	return c
 }
 
+// preReweightTolerance ends the fit whose residuals give the sensors'
+// noise factors: a tenth of a per cent of the objective changes a noise
+// factor by about as much, far less than its own sampling error (our
+// choice).
+const preReweightTolerance = 1e-3
+
 // maxReweights is how many times the fit reweights its sensors: the
 // second pass finds factors within a few per cent of one (our
 // observation on the demo town), a third changes nothing that matters.
@@ -557,7 +569,13 @@ func (m *model) identify(A *mat.SymDense, free []bool) {
 // Marquardt 1963) from cur on the free parameters, within their bounds
 // (projected steps; a parameter on a bound whose gradient pushes out is
 // held for that step). It leaves J, A and g at the returned state.
-func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []float64, free []bool, J *mat.Dense, A *mat.SymDense, g []float64, res *Result, logf func(string, ...any), tr trial, maxIter int) (*state, []float64, *mat.SymDense, []float64, error) {
+//
+// tol is the relative fall of the objective that ends it (≤ 0:
+// Settings.Tolerance).
+func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []float64, free []bool, J *mat.Dense, A *mat.SymDense, g []float64, res *Result, logf func(string, ...any), tr trial, maxIter int, tol float64) (*state, []float64, *mat.SymDense, []float64, error) {
+	if tol <= 0 {
+		tol = m.set.Tolerance
+	}
 	np := len(m.params)
 	theta = append([]float64(nil), theta...)
 	objective := func(st *state, th []float64) float64 {
@@ -634,7 +652,7 @@ func (m *model) levenberg(ctx context.Context, b *batch, cur *state, theta []flo
 				lambda = math.Max(lambda/3, 1e-9)
 				accepted = true
 				logf("calibration iteration", "iteration", res.Iterations, "misfit", b.cost(cur.r)/float64(max(1, b.rows)), "lambda", lambda)
-				if drop < m.set.Tolerance || step < 1e-7 {
+				if drop < tol || step < 1e-7 {
 					// Converged: the Jacobian of the previous iterate, a
 					// step below the tolerance away, serves for the
 					// covariance (it saves one adjoint pass).
