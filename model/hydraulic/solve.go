@@ -398,7 +398,7 @@ func (s *Solver) residuals(sol *Solution, all bool) float64 {
 			continue
 		}
 		q, dq := 0.0, 0.0
-		if s.net.Nodes[i].LeakCoeff != 0 || sol.leakC[i] != 0 {
+		if (s.netLeak && s.net.Nodes[i].LeakCoeff != 0) || sol.leakC[i] != 0 {
 			q, dq = s.leakAt(i, sol.Head[i], sol, all)
 		}
 		s.F[i] = -sol.Demand[i] - q
@@ -412,8 +412,8 @@ func (s *Solver) residuals(sol *Solution, all bool) float64 {
 			s.leakGap[lt.node] += lt.q - law
 		}
 	}
-	for k := range s.lm {
-		m := &s.lm[k]
+	for k := range s.hot {
+		m := &s.hot[k]
 		q := sol.Flow[k]
 		if m.jf >= 0 {
 			s.F[m.from] -= q
@@ -435,8 +435,8 @@ func (s *Solver) residuals(sol *Solution, all bool) float64 {
 // link for its state: ΔQ = p·(ΔH_from − ΔH_to) − y. Active pressure
 // valves get p = y = 0 and ctrl = controlled node.
 func (s *Solver) coefficients(sol *Solution) {
-	for k := range s.lm {
-		m := &s.lm[k]
+	for k := range s.hot {
+		m := &s.hot[k]
 		q := sol.Flow[k]
 		dh := sol.Head[m.from] - sol.Head[m.to]
 		s.ctrl[k] = -1
@@ -446,7 +446,7 @@ func (s *Solver) coefficients(sol *Solution) {
 			s.p[k] = 1 / gClosed
 			s.y[k] = q - s.p[k]*dh
 		case Active:
-			if m.valve == network.FlowControl {
+			if s.lm[k].valve == network.FlowControl {
 				s.p[k] = 1 / gClosed
 				s.y[k] = q - sol.setting[k]
 				break
@@ -455,7 +455,7 @@ func (s *Solver) coefficients(sol *Solution) {
 			s.ctrl[k], _ = s.controlled(k, sol)
 		default:
 			var h, g, sc float64
-			if m.kind == lkPipe && !m.dw {
+			if m.hw {
 				// lawOpen's Hazen-Williams case, inline: the same
 				// operations in the same order, for the most common link.
 				aq := math.Abs(q)
@@ -516,8 +516,8 @@ func (s *Solver) assemble(sol *Solution) {
 		s.diag[j] = s.leakD[n] + s.leakP[n]
 		s.rhs[j] = s.F[n] + s.leakY[n]
 	}
-	for k := range s.lm {
-		m := &s.lm[k]
+	for k := range s.hot {
+		m := &s.hot[k]
 		p, y := s.p[k], s.y[k]
 		if m.jf >= 0 {
 			s.diag[m.jf] += p
@@ -578,13 +578,13 @@ func (s *Solver) updateFlows(sol *Solution) float64 {
 		}
 		return s.dH[j]
 	}
-	for k := range s.lm {
-		m := &s.lm[k]
+	for k := range s.hot {
+		m := &s.hot[k]
 		if s.ctrl[k] >= 0 {
 			s.dQ[k] = 0
 			continue
 		}
-		s.dQ[k] = s.p[k]*(dh(m.jf)-dh(m.jt)) - s.y[k]
+		s.dQ[k] = s.p[k]*(dh(int(m.jf))-dh(int(m.jt))) - s.y[k]
 	}
 	for k := range s.lm {
 		c := s.ctrl[k]

@@ -51,6 +51,17 @@ type linkModel struct {
 	curve             PumpCurve
 }
 
+// linkHot is the part of a linkModel the Newton loop reads each
+// iteration: the ends, the matrix entry, and the law of a plain
+// Hazen-Williams pipe.
+type linkHot struct {
+	from, to, jf, jt, entry int32
+	kind                    linkKind
+	hw                      bool // a Hazen-Williams pipe: hwR and minor give its law
+	plain                   bool // a pipe without check valve: open unless closed
+	hwR, minor              float64
+}
+
 // Solver solves the steady state of one network topology for many sets of
 // conditions. NewSolver does the topology work once: the junction
 // numbering, the matrix pattern and its fill-reducing ordering and
@@ -64,7 +75,13 @@ type Solver struct {
 	jx   []int // node -> junction index or -1
 	node []int // junction index -> node
 	lm   []linkModel
-	nu   float64
+	// hot holds what the Newton loop reads of every link at every
+	// iteration, packed (40 bytes a link against linkModel's 152): the
+	// loops over links stream through it instead.
+	hot []linkHot
+	// netLeak says some junction of the network has a leak coefficient.
+	netLeak bool
+	nu      float64
 
 	// incidence: links at each node, CSR
 	incPtr, incLink []int
@@ -207,6 +224,17 @@ func NewSolver(net *network.Network, opt Options) (*Solver, error) {
 	s.leakY = make([]float64, nn)
 	s.leakGap = make([]float64, nn)
 	s.connClosed = make([]bool, nl)
+	s.hot = make([]linkHot, nl)
+	for k := range s.lm {
+		m := &s.lm[k]
+		s.hot[k] = linkHot{from: int32(m.from), to: int32(m.to), jf: int32(m.jf), jt: int32(m.jt), entry: int32(m.entry),
+			kind: m.kind, hw: m.kind == lkPipe && !m.dw, plain: m.kind == lkPipe && !m.cv, hwR: m.hwR, minor: m.minor}
+	}
+	for i := range net.Nodes {
+		if s.jx[i] >= 0 && net.Nodes[i].LeakCoeff != 0 {
+			s.netLeak = true
+		}
+	}
 	return s, nil
 }
 

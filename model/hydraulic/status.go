@@ -134,11 +134,20 @@ func (s *Solver) nextState(k int, sol *Solution) LinkState {
 // freezing links that change too often. It reports whether any changed.
 func (s *Solver) updateStatus(sol *Solution, apply bool) bool {
 	changed := false
-	for k := range s.lm {
+	for k := range s.hot {
 		if s.frozen[k] {
 			continue
 		}
-		next := s.nextState(k, sol)
+		var next LinkState
+		if st := sol.State[k]; s.hot[k].plain {
+			// nextState of a pipe without check valve.
+			next = Open
+			if st == Closed {
+				next = Closed
+			}
+		} else {
+			next = s.nextState(k, sol)
+		}
 		if next == sol.State[k] {
 			continue
 		}
