@@ -129,34 +129,35 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 	}
 	sol.solver = s
 	bad := func(v float64) bool { return math.IsNaN(v) || math.IsInf(v, 0) }
-	for i := range net.Nodes {
-		n := &net.Nodes[i]
-		if n.IsFixedHead() {
-			h := n.FixedHead()
+	// The network's values come from the Solver's per-node tables (the
+	// same numbers, without reading every Node).
+	for i := range s.jx {
+		if s.jx[i] < 0 {
+			h := s.fixedHead[i]
 			if c.FixedHead != nil && !math.IsNaN(c.FixedHead[i]) {
 				h = c.FixedHead[i]
 			}
 			if bad(h) {
-				return nil, fmt.Errorf("hydraulic: conditions: node %s: fixed head is not a number", n.ID)
+				return nil, fmt.Errorf("hydraulic: conditions: node %s: fixed head is not a number", net.Nodes[i].ID)
 			}
 			sol.Head[i] = h
 			continue
 		}
-		d := n.Demand
+		d := s.baseDemand[i]
 		if c.Demand != nil {
 			d = c.Demand[i]
 		}
 		if bad(d) {
-			return nil, fmt.Errorf("hydraulic: conditions: junction %s: demand is not a number", n.ID)
+			return nil, fmt.Errorf("hydraulic: conditions: junction %s: demand is not a number", net.Nodes[i].ID)
 		}
 		sol.Demand[i] = d
-		if n.LeakCoeff < 0 || n.LeakExponent < 0 || bad(n.LeakCoeff) || bad(n.LeakExponent) {
-			return nil, fmt.Errorf("hydraulic: junction %s: leak coefficient and exponent must be ≥ 0", n.ID)
+		if i == s.leakBad {
+			return nil, fmt.Errorf("hydraulic: junction %s: leak coefficient and exponent must be ≥ 0", net.Nodes[i].ID)
 		}
 		if c.LeakCoeff != nil {
 			lc, le := c.LeakCoeff[i], c.LeakExponent[i]
 			if lc < 0 || le < 0 || bad(lc) || bad(le) {
-				return nil, fmt.Errorf("hydraulic: conditions: junction %s: leak coefficient and exponent must be ≥ 0", n.ID)
+				return nil, fmt.Errorf("hydraulic: conditions: junction %s: leak coefficient and exponent must be ≥ 0", net.Nodes[i].ID)
 			}
 			sol.leakC[i], sol.leakN[i] = lc, le
 		}
@@ -758,16 +759,17 @@ func (s *Solver) factorError(err error) error {
 
 // finish fills the derived per-node and per-link fields.
 func (s *Solver) finish(sol *Solution) {
-	net := s.net
-	for i := range net.Nodes {
-		n := &net.Nodes[i]
+	for i := range s.jx {
 		switch {
 		case s.jx[i] >= 0:
-			sol.Pressure[i] = sol.Head[i] - n.Elevation
-			q, _ := s.leakAt(i, sol.Head[i], sol, true)
+			sol.Pressure[i] = sol.Head[i] - s.elev[i]
+			q := 0.0
+			if (s.netLeak && s.net.Nodes[i].LeakCoeff != 0) || sol.leakC[i] != 0 {
+				q, _ = s.leakAt(i, sol.Head[i], sol, true)
+			}
 			sol.Leak[i] = q
-		case n.Kind == network.Tank:
-			sol.Pressure[i] = sol.Head[i] - n.Elevation
+		case s.tank[i]:
+			sol.Pressure[i] = sol.Head[i] - s.elev[i]
 			sol.Demand[i] = 0
 		default:
 			sol.Pressure[i] = 0

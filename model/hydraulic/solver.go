@@ -79,8 +79,15 @@ type Solver struct {
 	// iteration, packed (40 bytes a link against linkModel's 152): the
 	// loops over links stream through it instead.
 	hot []linkHot
-	// netLeak says some junction of the network has a leak coefficient.
+	// netLeak says some junction of the network has a leak coefficient;
+	// leakBad is the first junction whose own leak data is not valid
+	// (-1: none), so that each solve need not look again.
 	netLeak bool
+	leakBad int
+	// Per node, what each solve reads of the network: elevation, base
+	// demand, fixed head (reservoirs and tanks), and whether it is a tank.
+	elev, baseDemand, fixedHead []float64
+	tank                        []bool
 	nu      float64
 
 	// incidence: links at each node, CSR
@@ -230,9 +237,21 @@ func NewSolver(net *network.Network, opt Options) (*Solver, error) {
 		s.hot[k] = linkHot{from: int32(m.from), to: int32(m.to), jf: int32(m.jf), jt: int32(m.jt), entry: int32(m.entry),
 			kind: m.kind, hw: m.kind == lkPipe && !m.dw, plain: m.kind == lkPipe && !m.cv, hwR: m.hwR, minor: m.minor}
 	}
+	s.leakBad = -1
+	s.elev, s.baseDemand, s.fixedHead, s.tank = make([]float64, nn), make([]float64, nn), make([]float64, nn), make([]bool, nn)
 	for i := range net.Nodes {
-		if s.jx[i] >= 0 && net.Nodes[i].LeakCoeff != 0 {
+		n := &net.Nodes[i]
+		s.elev[i], s.baseDemand[i], s.tank[i] = n.Elevation, n.Demand, n.Kind == network.Tank
+		if s.jx[i] < 0 {
+			s.fixedHead[i] = n.FixedHead()
+			continue
+		}
+		if n.LeakCoeff != 0 {
 			s.netLeak = true
+		}
+		bad := func(v float64) bool { return math.IsNaN(v) || math.IsInf(v, 0) }
+		if s.leakBad < 0 && (n.LeakCoeff < 0 || n.LeakExponent < 0 || bad(n.LeakCoeff) || bad(n.LeakExponent)) {
+			s.leakBad = i
 		}
 	}
 	return s, nil
