@@ -121,7 +121,12 @@
 // the network (m in the exported SI head-loss functions, whose flows are
 // m³/s). A Solver owns its workspace and reuses it (no allocation inside
 // the iteration loop); it is not safe for concurrent use. Every Solution
-// is freshly allocated and belongs to the caller. Bad input (a link
+// of Solve is freshly allocated and belongs to the caller; SolveInto
+// writes into a Solution the caller passes back (it may be the warm
+// start itself), so that a solve a model step allocates nothing, with
+// the same result bit for bit. The network is read once, by NewSolver
+// (node and link data in its own tables): it must not change while the
+// Solver is in use; whatever varies goes in Conditions. Bad input (a link
 // without diameter, a pump curve that does not fall, a conditions slice of
 // the wrong length) is an error naming the link, node or field; a
 // junction cut off from every source is a *DisconnectedError naming it;
