@@ -45,6 +45,17 @@ type Sensitivity struct {
 // one per active pressure valve. It uses the Solver's workspace: do not
 // call it concurrently with Solve.
 func (s *Solver) Sensitivities(sol *Solution, obs []Observation) (*Sensitivity, error) {
+	return s.SensitivitiesInto(sol, obs, nil)
+}
+
+// SensitivitiesInto is Sensitivities writing into the memory of dst (nil:
+// a fresh Sensitivity, as Sensitivities returns): its rows are reused
+// where they have this network's sizes, so that repeated calls (a
+// localisation every hour) do not allocate a row of node and link
+// derivatives per observation each time (5 MB for 60 observations on
+// 5,000 junctions). The numbers are those of Sensitivities bit for bit.
+// The returned Sensitivity is dst when dst is not nil.
+func (s *Solver) SensitivitiesInto(sol *Solution, obs []Observation, dst *Sensitivity) (*Sensitivity, error) {
 	if sol == nil || sol.solver == nil || sol.solver.net != s.net {
 		return nil, errors.New("hydraulic: sensitivities: solution is not from a solver of this network")
 	}
@@ -125,15 +136,35 @@ func (s *Solver) Sensitivities(sol *Solution, obs []Observation) (*Sensitivity, 
 		valveIdx[k] = a
 	}
 
-	out := &Sensitivity{Obs: append([]Observation(nil), obs...), Outflow: make([][]float64, len(obs)), Resistance: make([][]float64, len(obs))}
+	out := dst
+	if out == nil {
+		out = &Sensitivity{}
+	}
+	out.Obs = append(out.Obs[:0], obs...)
+	for len(out.Outflow) < len(obs) {
+		out.Outflow = append(out.Outflow, nil)
+	}
+	for len(out.Resistance) < len(obs) {
+		out.Resistance = append(out.Resistance, nil)
+	}
+	out.Outflow, out.Resistance = out.Outflow[:len(obs)], out.Resistance[:len(obs)]
 	cv := make([]float64, nj)
 	z := make([]float64, nj)
 	d := make([]float64, r)
 	u := make([]float64, r)
 	w := make([]float64, nn)
 	for oi, o := range obs {
-		outflow := make([]float64, nn)
-		res := make([]float64, nl)
+		outflow, res := out.Outflow[oi], out.Resistance[oi]
+		if len(outflow) == nn {
+			clear(outflow)
+		} else {
+			outflow = make([]float64, nn)
+		}
+		if len(res) == nl {
+			clear(res)
+		} else {
+			res = make([]float64, nl)
+		}
 		out.Outflow[oi], out.Resistance[oi] = outflow, res
 		for i := range cv {
 			cv[i] = 0

@@ -235,3 +235,67 @@ func TestCoefficientsInlineIsLaw(t *testing.T) {
 		t.Fatal("no open Hazen-Williams pipe checked")
 	}
 }
+
+// SensitivitiesInto gives, bit for bit, what Sensitivities gives (the
+// reference, checked against finite differences in sensitivity_test.go),
+// into reused rows whatever they held, with observations of heads at
+// junctions and fixed-head nodes and of flows, with and without an
+// active pressure valve; the rows are reused, not reallocated.
+func TestSensitivitiesIntoIsSensitivities(t *testing.T) {
+	for _, withPRV := range []bool{false, true} {
+		net := sensNet(withPRV)
+		s, err := NewSolver(net, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		sol, err := s.Solve(nil, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var obs []Observation
+		for i := range net.Nodes {
+			obs = append(obs, NodeObservation(i))
+		}
+		for k := range net.Links {
+			obs = append(obs, LinkObservation(k))
+		}
+		var dst *Sensitivity
+		for round := 0; round < 3; round++ {
+			o := obs[round:] // a different list each round
+			want, err := s.Sensitivities(sol, o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			var first *float64
+			if dst != nil && len(dst.Outflow) > 0 {
+				for i := range dst.Outflow[0] {
+					dst.Outflow[0][i] = 99 // stale values must not survive
+				}
+				first = &dst.Outflow[0][0]
+			}
+			got, err := s.SensitivitiesInto(sol, o, dst)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if dst != nil && got != dst {
+				t.Fatal("SensitivitiesInto did not return dst")
+			}
+			if first != nil && &got.Outflow[0][0] != first {
+				t.Error("a row of the right size was reallocated")
+			}
+			if !reflect.DeepEqual(got.Obs, want.Obs) || len(got.Outflow) != len(o) || len(got.Resistance) != len(o) {
+				t.Fatalf("round %d: observations or rows differ", round)
+			}
+			for i := range o {
+				for _, pair := range [][2][]float64{{got.Outflow[i], want.Outflow[i]}, {got.Resistance[i], want.Resistance[i]}} {
+					for j := range pair[1] {
+						if math.Float64bits(pair[0][j]) != math.Float64bits(pair[1][j]) {
+							t.Fatalf("PRV %v round %d observation %d entry %d: %v, Sensitivities %v", withPRV, round, i, j, pair[0][j], pair[1][j])
+						}
+					}
+				}
+			}
+			dst = got
+		}
+	}
+}
