@@ -20,7 +20,8 @@ import (
 // rougher in truth than in the records (older pipes more, sim.Perturb);
 // readings simulated from the truth go through `plumbline calibrate`, and
 // every roughness group the data identify comes out nearer its true value
-// than the record was, the true value within three standard errors.
+// than the record was, the true value within two standard errors for
+// nearly all.
 func TestCalibrateRecoversAgedPipes(t *testing.T) {
 	dir := t.TempDir()
 	cfg, net, err := demoConfig(dir)
@@ -97,7 +98,7 @@ func TestCalibrateRecoversAgedPipes(t *testing.T) {
 			t.Errorf("group %s: fitted C %.1f is further from the truth %.1f than the record %.1f", p.Group, p.Estimate, want, p.Prior)
 		}
 		t.Logf("group %s: record %.1f, fitted %.1f ± %.1f, truth %.1f", p.Group, p.Prior, p.Estimate, p.StdErr, want)
-		if after <= 3*p.StdErr+0.5 {
+		if after <= 2*p.StdErr {
 			covered++
 		}
 		checked++
@@ -105,10 +106,11 @@ func TestCalibrateRecoversAgedPipes(t *testing.T) {
 	if checked == 0 {
 		t.Fatalf("no roughness group identified:\n%s", out.String())
 	}
-	// Demand noise correlated in time makes the stated errors somewhat
-	// optimistic here; most groups must still lie within three of them.
-	if float64(covered) < 0.75*float64(checked) {
-		t.Errorf("only %d of %d groups within 3 standard errors of the truth", covered, checked)
+	// Within two standard errors lies the truth in 95 % of cases for a
+	// normal error (any statistics text): of six groups, at least five
+	// (with 95 % each, all but one fall inside with probability 0.97).
+	if float64(covered) < 0.8*float64(checked) {
+		t.Errorf("only %d of %d groups within 2 standard errors of the truth", covered, checked)
 	}
 	if _, err := network.ReadFile(filepath.Join(dir, "calibrated.geojson")); err != nil {
 		t.Errorf("calibrated network does not read back: %v", err)
