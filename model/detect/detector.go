@@ -804,6 +804,8 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 			tq := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: n - 1}.Quantile(0.975) / 1.959964
 			sigma := math.Max(sd*math.Sqrt(1+1/n)*tq, math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
 			z := (adj - med) / sigma
+			d.tracef("%s zone %s night: imbalance %+.2f L/s, normal %+.2f ± %.2f (%d nights), z %+.2f, CUSUM %.2f of %.2f",
+				zs.NightStart.UTC().Format(time.RFC3339), d.zones[zi].z.ID, adj, med, sigma, len(zs.Nights), z, zs.Night.S, zs.Night.H)
 			if zs.Repair.Update(zs.NightStart, -z) {
 				d.repaired(zi, zs.Repair.Shift()*sigma, t)
 				zs.Repair.Reset()
