@@ -583,7 +583,11 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.meterFault(zi, ev, onset, now, why+", but pressures did not fall as a leak of that size would")
 		return true
 	}
-	if d.grownLeak(zi, ev, sg, size, now, why) || d.raisePair(zi, ev, sg, size, onset, now, why) {
+	single := math.Inf(1)
+	if len(top) > 0 {
+		single = top[0].sse
+	}
+	if d.grownLeak(zi, ev, sg, size, now, why) || d.raisePair(zi, ev, sg, size, single, onset, now, why) {
 		return true
 	}
 	for i, r := range top {
@@ -634,8 +638,8 @@ func (d *Detector) grownLeak(zi int, ev evidence, sg *signatures, q float64, now
 
 // raisePair raises two leak findings in place of one when pairFit finds
 // that two leaks explain the change of size q clearly better.
-func (d *Detector) raisePair(zi int, ev evidence, sg *signatures, q float64, onset, now time.Time, why string) bool {
-	pair, ok := d.pairFit(zi, ev, sg, q)
+func (d *Detector) raisePair(zi int, ev evidence, sg *signatures, q, single float64, onset, now time.Time, why string) bool {
+	pair, ok := d.pairFit(zi, ev, sg, q, single)
 	if !ok {
 		return false
 	}
@@ -665,7 +669,10 @@ type leakPart struct {
 }
 
 // pairFit asks whether two leaks explain the residuals of a zone change
-// of q L/s clearly better than one: for each of the best single-leak
+// of q L/s clearly better than one (single is the misfit of the best one
+// after the non-linear re-scoring: a large leak near a logger is far from
+// linear, and a linear single fit would leave a misfit that a second
+// place can take up): for each of the best single-leak
 // places a and every other junction b of the zone, the linear residual of
 // x L/s at a and q − x at b, x fitted by weighted least squares, each
 // part at least a fifth of q. The pair is taken when it lowers the misfit
@@ -673,18 +680,18 @@ type leakPart struct {
 // parameter may buy (Akaike 1974) and the 2·ln N that choosing the second
 // place among N buys by chance (a Bonferroni bound on the best of N
 // one-parameter fits, our choice).
-func (d *Detector) pairFit(zi int, ev evidence, sg *signatures, q float64) ([2]leakPart, bool) {
+func (d *Detector) pairFit(zi int, ev evidence, sg *signatures, q, single float64) ([2]leakPart, bool) {
 	var out [2]leakPart
 	junctions := d.zones[zi].junctions
 	if len(junctions) < 2 || len(ev.sensors) < 3 {
 		return out, false
 	}
-	single := d.leakFits(zi, ev, sg, q)
-	best1 := math.Inf(1)
-	for _, r := range single {
+	fits := d.leakFits(zi, ev, sg, q)
+	best1 := single
+	for _, r := range fits {
 		best1 = math.Min(best1, r.sse)
 	}
-	short, _ := rank(append([]ranked(nil), single...), shortlist)
+	short, _ := rank(append([]ranked(nil), fits...), shortlist)
 	m := len(ev.sensors)
 	g := func(j int, dst []float64) {
 		for k := range dst {
@@ -954,7 +961,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		}
 		if hy.sg != nil {
 			why := fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)
-			if d.grownLeak(zi, ev, hy.sg, size, now, why) || d.raisePair(zi, ev, hy.sg, size, onset, now, why) {
+			if d.grownLeak(zi, ev, hy.sg, size, now, why) || d.raisePair(zi, ev, hy.sg, size, l.sse, onset, now, why) {
 				return true
 			}
 		}
