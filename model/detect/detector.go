@@ -44,6 +44,12 @@ type Detector struct {
 	cond    hydraulic.Conditions
 	prevExp *hydraulic.Solution
 	prevMat *hydraulic.Solution
+	// sensBuf and trial are scratch of the localisation: the rows of the
+	// last signatures (valid until the next signatures call, which every
+	// hypothesis finishes with before another starts) and the solution of
+	// the last trial solve.
+	sensBuf *hydraulic.Sensitivity
+	trial   *hydraulic.Solution
 
 	designNight, designBurst, designResid CUSUM
 

@@ -140,10 +140,12 @@ func (r *responses) resistance(l int, factor float64) ([]float64, error) {
 
 func (r *responses) solve(c *hydraulic.Conditions) ([]float64, error) {
 	r.solves++
-	sol, err := r.d.solver.Solve(c, r.sg.ref)
+	sol, err := r.d.solver.SolveInto(c, r.sg.ref, r.d.trial)
 	if err != nil {
+		r.d.trial = nil // partly written: not reused
 		return nil, err
 	}
+	r.d.trial = sol
 	out := make([]float64, len(r.ev.sensors))
 	for k, si := range r.ev.sensors {
 		n := r.d.sens[si].node
@@ -373,10 +375,11 @@ func (d *Detector) signatures(ev evidence) (*signatures, error) {
 	for k, si := range sensors {
 		obs[k] = hydraulic.Observation{Node: d.sens[si].node, Link: -1}
 	}
-	sens, err := d.solver.Sensitivities(ref, obs)
+	sens, err := d.solver.SensitivitiesInto(ref, obs, d.sensBuf)
 	if err != nil {
 		return nil, fmt.Errorf("sensitivities: %w", err)
 	}
+	d.sensBuf = sens
 	sg := &signatures{sens: sens, ubar: make([]float64, len(sensors)), cond: c, ref: ref}
 	total := 0.0
 	for _, j := range d.zones[zi].junctions {
