@@ -94,13 +94,15 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		end = last.Add(cfg.Step)
 	}
 	al.Flush(end)
+	// Each zone's balance meters: the fit, like the detector, models a
+	// zone's demand at its metered consumption.
 	zones := map[string]*time.Location{}
 	balances := map[string]calib.ZoneMeters{}
 	for _, z := range cfg.Zones {
 		zones[z.ID] = z.TimeZone
 		balances[z.ID] = calib.ZoneMeters{Inlets: z.Inlets, Outlets: z.Outlets}
 	}
-	res, err := calib.Fit(ctx, calib.Problem{Network: cfg.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones}, calib.Settings{Interval: *interval})
+	res, err := calib.Fit(ctx, calib.Problem{Network: cfg.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones, Balances: balances}, calib.Settings{Interval: *interval})
 	if err != nil {
 		return err
 	}

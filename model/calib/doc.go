@@ -34,6 +34,21 @@
 // 0.2..3 (Settings.MultMin, MultMax). Junctions without a zone keep
 // their recorded demand.
 //
+// A zone with a water balance (Problem.Balances: the service
+// configuration's inlet and outlet meters) is modelled as the detector
+// models it: at each snapshot its junctions' demand is scaled so that the
+// zone uses what its meters measure (inflow less outflow, 0..5 times the
+// patterns' demand; a snapshot with one of its meters unreadable is left
+// out), its meters other than pumps' leave the observations (their flow
+// is the zone's consumption now), and its hourly multipliers are not
+// fitted but measured: each knot is the mean of the matched scale over
+// the fit days, with a standard error from the day-to-day spread
+// (pooled over the day type's hours, at least Settings.DayVariation)
+// over √days. Roughness is then fitted to the pressures the
+// inflow-matched model gives, and the zone's multipliers cannot take up
+// what the model gets wrong elsewhere (a pump it pumps too much with,
+// a valve it does not know is shut).
+//
 // Boundary conditions come from the readings, as in the detector: a
 // tank's level (or head) sensor sets its head, a reservoir's head sensor
 // its head, and a pump whose flow meter reads under a tenth of its

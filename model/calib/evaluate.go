@@ -69,6 +69,7 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 		return nil, errors.New("calibration: evaluate: no network")
 	}
 	s.NoRoughness, s.NoPatterns = true, true
+	s.evaluating = true
 	s.HoldOut = -1
 	s.MaxSnapshots = math.MaxInt
 	s = s.withDefaults()
@@ -78,10 +79,10 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 	if err != nil {
 		return nil, err
 	}
-	if len(p.Balances) > 0 {
-		ev.InflowMatched = true
-		ev.Matched, ev.Unmatched = m.matchInflow(p, snaps, warn)
+	for _, ok := range m.matched {
+		ev.InflowMatched = ev.InflowMatched || ok
 	}
+	ev.Matched, ev.Unmatched = m.matchedN, m.unmatchedN
 	b := newBatch(snaps, m.sens)
 	st, err := m.evaluateAll(ctx, b, nil, nil, noTrial)
 	if err != nil {
@@ -163,90 +164,4 @@ func Evaluate(ctx context.Context, p Problem, s Settings) (*Evaluation, error) {
 		ev.Sensors = append(ev.Sensors, sr)
 	}
 	return ev, nil
-}
-
-// maxMatch bounds the inflow-matched scale of a zone's demand, as the
-// detector's does (0..5).
-const maxMatch = 5
-
-// matchInflow scales each snapshot's demand, zone by zone, to the zone's
-// metered consumption (see Evaluate). Zones or meters it cannot use are
-// warned about once.
-func (m *model) matchInflow(p Problem, snaps []*snapData, warn func(string)) (matched, unmatched int) {
-	bySensor := map[string]int{}
-	for k, si := range m.sens {
-		bySensor[si.s.ID] = k
-	}
-	type meter struct {
-		k    int
-		sign float64
-	}
-	zoneMeters := make([][]meter, len(m.zones))
-	ok := make([]bool, len(m.zones))
-	for z, name := range m.zones {
-		zm, has := p.Balances[name]
-		if !has || len(zm.Inlets)+len(zm.Outlets) == 0 {
-			continue
-		}
-		ok[z] = true
-		for _, list := range []struct {
-			ids    []string
-			outlet bool
-		}{{zm.Inlets, false}, {zm.Outlets, true}} {
-			for _, id := range list.ids {
-				k, found := bySensor[id]
-				if !found || m.sens[k].link < 0 {
-					warn(fmt.Sprintf("zone %s: balance meter %s is not a flow sensor of the problem: the zone's demand stays on its patterns", name, id))
-					ok[z] = false
-					continue
-				}
-				l := &m.net.Links[m.sens[k].link]
-				from, to := m.net.Nodes[l.From].Zone == name, m.net.Nodes[l.To].Zone == name
-				sign := 1.0
-				switch {
-				case to && !from:
-				case from && !to:
-					sign = -1
-				case list.outlet:
-					sign = -1
-				}
-				zoneMeters[z] = append(zoneMeters[z], meter{k, sign})
-			}
-		}
-	}
-	for _, s := range snaps {
-		for z := range m.zones {
-			if !ok[z] {
-				continue
-			}
-			q := 0.0
-			usable := true
-			for _, mt := range zoneMeters[z] {
-				v := s.y[mt.k]
-				if math.IsNaN(v) {
-					usable = false
-					break
-				}
-				q += mt.sign * v
-			}
-			dem := 0.0
-			for j, zi := range m.zoneOf {
-				if zi == z {
-					dem += s.pd[j]
-				}
-			}
-			if !usable || dem <= 0 {
-				unmatched++
-				continue
-			}
-			f := math.Min(maxMatch, math.Max(0, q/dem))
-			for j, zi := range m.zoneOf {
-				if zi == z {
-					s.pd[j] *= f
-				}
-			}
-			matched++
-		}
-	}
-	return matched, unmatched
 }

@@ -53,6 +53,7 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	}
 	res.FitDays = fitDays
 	res.FitSnapshots = len(fit)
+	m.estimateKnots(fit)
 	b := newBatch(fit, m.sens)
 	res.Rows = b.rows
 	np := len(m.params)
@@ -168,7 +169,17 @@ func Fit(ctx context.Context, p Problem, s Settings) (*Result, error) {
 	if cov == nil {
 		cov = mat.NewSymDense(max(1, np), nil)
 	}
-	res.Parameters = m.report(theta, free, A, cov)
+	res.Parameters = append(m.report(theta, free, A, cov), m.matchedParameters()...)
+	if dv, ok := m.matchedDayVariation(); ok {
+		res.DayVariation = math.Max(res.DayVariation, dv)
+		res.DayVariationUsed = math.Max(res.DayVariationUsed, dv)
+	}
+	if m.matchedN+m.unmatchedN > 0 {
+		res.InflowMatched = m.matchedN
+		if m.unmatchedN > 0 {
+			warn(fmt.Sprintf("%d zone-snapshots left out: a balance meter unreadable", m.unmatchedN))
+		}
+	}
 	res.PipeEffects = m.pipeEffects(theta, free, cov)
 	res.Sensors = m.sensorFits(b, st0.r, cur.r, scale)
 
@@ -337,6 +348,8 @@ func setup(p Problem, s Settings, warn func(string)) (m *model, fit, held []*sna
 			locs[z] = l
 		}
 	}
+	m.resolveBalances(p, warn)
+	m.locs = locs
 	pz := m.buildParams(locs)
 	fit, held, fitDays, heldDays, err = m.prepare(p, locs, pz, warn)
 	if err != nil {
@@ -396,7 +409,7 @@ func (m *model) buildParams(locs []*time.Location) [][]int {
 		for i := range pz[z] {
 			pz[z][i] = -1
 		}
-		if m.set.NoPatterns || base[z] <= 0 {
+		if m.set.NoPatterns || base[z] <= 0 || (m.matched != nil && m.matched[z]) {
 			continue
 		}
 		days := []string{"weekday", "weekend"}
@@ -1025,6 +1038,12 @@ func (m *model) calibrated(theta []float64, free []bool, locs []*time.Location, 
 				anyFree = true
 			}
 		}
+		matched := m.knots != nil && m.knots[z] != nil
+		for i := 0; matched && i < 48; i++ {
+			if _, ok := m.knotValue(z, i/24, i%24); ok {
+				anyFree = true
+			}
+		}
 		if !anyFree {
 			continue
 		}
@@ -1048,6 +1067,11 @@ func (m *model) calibrated(theta []float64, free []bool, locs []*time.Location, 
 			hf := t.Hours()
 			h := int(math.Floor(hf)) % 24
 			f := hf - math.Floor(hf)
+			if matched {
+				va, _ := m.knotValue(z, dt, h)
+				vb, _ := m.knotValue(z, dt, (h+1)%24)
+				return (1-f)*va + f*vb
+			}
 			a := m.knotParam(z, dt, h)
 			bb := m.knotParam(z, dt, (h+1)%24)
 			va, vb := 1.0, 1.0

@@ -65,6 +65,7 @@ type snapData struct {
 	za    []int     // per zone: parameter of the knot before t (−1 none)
 	zb    []int     // per zone: parameter of the knot after t
 	zf    []float64 // per zone: weight of the knot after t
+	zs    []float64 // per zone: the inflow-matched scale of its demand (NaN: not matched)
 	obs   []int     // observed sensors (indices), in row order
 	level float64   // demand level, for selection
 }
@@ -113,6 +114,14 @@ type model struct {
 	linkPar  []int // link → roughness parameter index or −1
 	linkDev  []int // link → its own pipeEffect parameter index or −1 (nil: none)
 	devLinks []int // the links with a pipeEffect, in link order
+	// Zones with a water balance (Problem.Balances): their meters, whether
+	// matched, the snapshots' counts, and the knots estimated from the
+	// matched demand (estimateKnots).
+	bal                  [][]balanceMeter
+	matched              []bool
+	matchedN, unmatchedN int
+	knots                [][]knotEstimate
+	locs                 []*time.Location // each zone's clock
 }
 
 // state is the model evaluated at one parameter vector: the solvers

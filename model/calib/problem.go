@@ -32,9 +32,11 @@ type Problem struct {
 	// missing zone means UTC.
 	Zones map[string]*time.Location
 	// Balances names, per zone, the flow meters of its water balance (the
-	// service configuration's inlets and outlets). Fit does not use them;
-	// with them Evaluate compares readings with the inflow-matched model,
-	// as the detector does (see Evaluate).
+	// service configuration's inlets and outlets). A zone with a balance
+	// is modelled inflow-matched, as the detector models it: at each
+	// snapshot its junctions' demand is scaled so that the zone uses what
+	// its meters measure (see the package doc); Evaluate then gives the
+	// residuals the detector's baselines hold.
 	Balances map[string]ZoneMeters
 }
 
@@ -123,6 +125,10 @@ type Settings struct {
 	Workers int
 	// Logger receives progress (one line per iteration); nil: none.
 	Logger *zerolog.Logger
+
+	// evaluating: Evaluate's setup (snapshots with a balance meter
+	// unreadable stay on the patterns; the meters stay observed).
+	evaluating bool
 }
 
 func (s Settings) withDefaults() Settings {

@@ -197,9 +197,12 @@ type Result struct {
 	// DayVariation is the day-to-day spread of zone consumption the fit
 	// found (relative standard deviation; 0 with fewer than two days of a
 	// kind), DayVariationUsed the value its standard errors assume.
-	DayVariation     float64     `json:"day_variation"`
-	DayVariationUsed float64     `json:"day_variation_used"`
-	Parameters       []Parameter `json:"parameters"`
+	DayVariation     float64 `json:"day_variation"`
+	DayVariationUsed float64 `json:"day_variation_used"`
+	// InflowMatched counts the zone-snapshots of the fit whose demand
+	// was scaled to the zone's metered consumption (Problem.Balances).
+	InflowMatched int         `json:"inflow_matched,omitempty"`
+	Parameters    []Parameter `json:"parameters"`
 	// PipeEffects are the pipes given their own roughness about their
 	// group's, the largest departure first.
 	PipeEffects []PipeEffect `json:"pipe_effects,omitempty"`

@@ -99,6 +99,7 @@ func (m *model) prepare(p Problem, locs []*time.Location, pz [][]int, warn func(
 			za:  make([]int, len(m.zones)),
 			zb:  make([]int, len(m.zones)),
 			zf:  make([]float64, len(m.zones)),
+			zs:  make([]float64, len(m.zones)),
 		}
 		var lvl float64
 		var nl int
@@ -153,6 +154,9 @@ func (m *model) prepare(p Problem, locs []*time.Location, pz [][]int, warn func(
 			d.za[z] = pz[z][dt*24+h]
 			d.zb[z] = pz[z][dt*24+(h+1)%24]
 			d.zf[z] = frac
+		}
+		if !m.matchSnapshot(d) {
+			continue
 		}
 		all = append(all, d)
 	}
