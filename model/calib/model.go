@@ -344,6 +344,9 @@ func (m *model) jacWorker(ctx context.Context, b *batch, st *state, J *mat.Dense
 	zsum := make([]float64, len(m.zones))
 	gsum := make([]float64, len(m.params))
 	np := len(m.params)
+	// The rows of one snapshot's derivatives serve the next (the worker's
+	// snapshots are taken one at a time).
+	var reuse *hydraulic.Sensitivity
 	for i := w; i < len(b.snaps); i += W {
 		if err := ctx.Err(); err != nil {
 			return err
@@ -361,10 +364,11 @@ func (m *model) jacWorker(ctx context.Context, b *batch, st *state, J *mat.Dense
 				obs[k] = hydraulic.NodeObservation(m.sens[si].node)
 			}
 		}
-		sen, err := solver.Sensitivities(sol, obs)
+		sen, err := solver.SensitivitiesInto(sol, obs, reuse)
 		if err != nil {
 			return fmt.Errorf("calibration: snapshot %s: sensitivities: %w", s.t.Format(time.RFC3339), err)
 		}
+		reuse = sen
 		for l := range e {
 			e[l] = 0
 			if m.linkPar[l] >= 0 {
