@@ -37,7 +37,15 @@ type watch struct {
 	ZonePre [24]float64
 	ZoneSum float64
 	ZoneN   int
+	// Hours counts the hours added since the finding was raised.
+	Hours int
 }
+
+// rerankEvery is how many hours of evidence a watched finding gathers
+// between re-rankings (and it is re-ranked in its last hour): an hour adds
+// little to a day's evidence, and each re-ranking costs a reference
+// solve, the adjoint solves and a full solve per shortlisted candidate.
+const rerankEvery = 3
 
 // raise records a new finding and returns its index.
 func (d *Detector) raise(f finding.Finding) int {
@@ -95,7 +103,10 @@ func (d *Detector) refine(h time.Time, hourly, zoneHourly []float64) {
 				w.N[k]++
 			}
 		}
-		d.rerank(&w)
+		w.Hours++
+		if w.Hours%rerankEvery == 0 || !h.Add(time.Hour).Before(w.Until) {
+			d.rerank(&w)
+		}
 		keep = append(keep, w)
 	}
 	d.st.Watch = keep
