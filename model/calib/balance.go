@@ -261,17 +261,26 @@ func (m *model) knotOf(d *snapData, z int) (dt, h int) {
 }
 
 // knotValue returns a matched zone's estimated multiplier at knot (day
-// type, hour) and whether it is identified (its standard error within
-// Settings.MaxMultiplierSE).
+// type, hour) and whether it is identified: at least two days behind it
+// (one day says nothing of its own spread) and its standard error within
+// Settings.MaxMultiplierSE. A weekend knot that is not identified takes
+// the weekday knot's value when that one is: the records draw no line
+// between the two, and a step between them at midnight would be a step
+// in the zone's expected consumption that no water makes.
 func (m *model) knotValue(z, dt, h int) (float64, bool) {
 	if m.knots == nil || m.knots[z] == nil {
 		return 1, false
 	}
 	k := m.knots[z][dt*24+h]
-	if math.IsNaN(k.mean) || k.se > m.set.MaxMultiplierSE {
-		return 1, false
+	if !math.IsNaN(k.mean) && k.days >= 2 && k.se <= m.set.MaxMultiplierSE {
+		return k.mean, true
 	}
-	return k.mean, true
+	if dt == 1 {
+		if v, ok := m.knotValue(z, 0, h); ok {
+			return v, false
+		}
+	}
+	return 1, false
 }
 
 // matchedParameters returns the report's parameters of the matched
@@ -290,6 +299,9 @@ func (m *model) matchedParameters() []Parameter {
 			for h := range 24 {
 				k := ks[dt*24+h]
 				v, ok := m.knotValue(z, dt, h)
+				if !ok && dt == 0 {
+					v = 1
+				}
 				p := Parameter{Name: fmt.Sprintf("demand %s %s %02d:00", m.zones[z], dname, h), Kind: DemandMultiplier,
 					Zone: m.zones[z], DayType: dname, Hour: h, Prior: 1, Estimate: v, StdErr: k.se, Identifiable: ok}
 				if math.IsInf(p.StdErr, 1) {

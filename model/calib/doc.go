@@ -44,7 +44,10 @@
 // fitted but measured: each knot is the mean of the matched scale over
 // the fit days, with a standard error from the day-to-day spread
 // (pooled over the day type's hours, at least Settings.DayVariation)
-// over √days. Roughness is then fitted to the pressures the
+// over √days; a knot needs two days to count as identified, and a weekend
+// knot that is not takes the weekday knot's value (the records draw no
+// line between them; a step at midnight would be a step in the expected
+// consumption that no water makes). Roughness is then fitted to the pressures the
 // inflow-matched model gives, and the zone's multipliers cannot take up
 // what the model gets wrong elsewhere (a pump it pumps too much with,
 // a valve it does not know is shut).

@@ -1040,7 +1040,7 @@ func (m *model) calibrated(theta []float64, free []bool, locs []*time.Location, 
 		}
 		matched := m.knots != nil && m.knots[z] != nil
 		for i := 0; matched && i < 48; i++ {
-			if _, ok := m.knotValue(z, i/24, i%24); ok {
+			if v, _ := m.knotValue(z, i/24, i%24); v != 1 {
 				anyFree = true
 			}
 		}

@@ -187,3 +187,51 @@ func keys(m map[string][]float64) []string {
 	}
 	return out
 }
+
+// TestBalancedWeekendFollowsWeekday checks the measured multipliers of a
+// balanced fit on weekdays alone: every weekend knot is unidentified and
+// takes its weekday knot's value, so the calibrated network's weekend
+// pattern equals its weekday one at every step (no step in the expected
+// consumption at midnight between a Friday and a Saturday), and every
+// weekday knot is identified from its days.
+func TestBalancedWeekendFollowsWeekday(t *testing.T) {
+	res, _ := recoveryRunWith(t, 11, true)
+	wd := map[string]float64{}
+	for _, p := range res.Parameters {
+		if p.Kind == DemandMultiplier && p.DayType == "weekday" {
+			if !p.Identifiable {
+				t.Errorf("%s: not identified from three weekdays", p.Name)
+			}
+			wd[p.Zone+two(p.Hour)] = p.Estimate
+		}
+	}
+	n := 0
+	for _, p := range res.Parameters {
+		if p.Kind == DemandMultiplier && p.DayType == "weekend" {
+			n++
+			if p.Identifiable || p.Estimate != wd[p.Zone+two(p.Hour)] {
+				t.Errorf("%s: identifiable %v, estimate %.4g; want unidentified at the weekday's %.4g", p.Name, p.Identifiable, p.Estimate, wd[p.Zone+two(p.Hour)])
+			}
+		}
+	}
+	if n == 0 {
+		t.Fatal("no weekend multipliers reported")
+	}
+	pairs := 0
+	for name, v := range res.Network.Patterns {
+		we, ok := res.Network.Patterns[name+"-weekend"]
+		if !ok {
+			continue
+		}
+		pairs++
+		for i := range v {
+			if we[i] != v[i] {
+				t.Errorf("pattern %s step %d: weekend %.6g, weekday %.6g", name, i, we[i], v[i])
+				break
+			}
+		}
+	}
+	if pairs == 0 {
+		t.Errorf("no weekday and weekend calibrated patterns in the network (patterns %v)", keys(res.Network.Patterns))
+	}
+}
