@@ -180,10 +180,14 @@ func (s *Service) Recalibrate(ctx context.Context) (*Decision, error) {
 	}
 	dec.Snapshots = len(snaps)
 	zones := map[string]*time.Location{}
+	// The zones' balance meters: each metered zone is fitted
+	// inflow-matched, as the detector models it (as `calibrate` does).
+	balances := map[string]calib.ZoneMeters{}
 	for _, z := range s.cfg.Zones {
 		zones[z.ID] = z.TimeZone
+		balances[z.ID] = calib.ZoneMeters{Inlets: z.Inlets, Outlets: z.Outlets}
 	}
-	res, err := calib.Fit(ctx, calib.Problem{Network: s.cfg.Network, Sensors: s.cfg.Sensors, Snapshots: snaps, Zones: zones}, calib.Settings{})
+	res, err := calib.Fit(ctx, calib.Problem{Network: s.cfg.Network, Sensors: s.cfg.Sensors, Snapshots: snaps, Zones: zones, Balances: balances}, calib.Settings{})
 	if err != nil {
 		return nil, fmt.Errorf("recalibration: %w", err)
 	}
@@ -203,7 +207,7 @@ func (s *Service) Recalibrate(ctx context.Context) (*Decision, error) {
 	case len(hs) == 0:
 		dec.Reason = "no held-out day to compare the networks on"
 	default:
-		p := calib.Problem{Sensors: s.cfg.Sensors, Snapshots: hs, Zones: zones}
+		p := calib.Problem{Sensors: s.cfg.Sensors, Snapshots: hs, Zones: zones, Balances: balances}
 		p.Network = cur
 		evCur, err := calib.Evaluate(ctx, p, calib.Settings{})
 		if err != nil {
