@@ -50,6 +50,11 @@ func ReadAhead(ctx context.Context, src Source, from, to time.Time, sensors []st
 			}
 			select {
 			case full <- batch:
+				// Handed over: the consumer owns it now. If the wait for a
+				// free one is cut short, nothing is left to flush (sending
+				// it again would hand one buffer over twice and overfill
+				// free).
+				batch = nil
 			case <-rctx.Done():
 				return context.Cause(rctx)
 			}
