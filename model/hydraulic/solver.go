@@ -88,7 +88,7 @@ type Solver struct {
 	// demand, fixed head (reservoirs and tanks), and whether it is a tank.
 	elev, baseDemand, fixedHead []float64
 	tank                        []bool
-	nu      float64
+	nu                          float64
 
 	// incidence: links at each node, CSR
 	incPtr, incLink []int
