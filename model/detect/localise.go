@@ -580,7 +580,8 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 		d.accept(zi, ev, size, now, f)
 		return true
 	}
-	short, _ := rank(d.leakFits(zi, ev, sg, size), shortlist)
+	fits := d.leakFits(zi, ev, sg, size)
+	short, _ := rank(append([]ranked(nil), fits...), shortlist)
 	top, scores := rank(d.refineLeaks(ev, sg, short, size), d.cfg.Candidates)
 	meterSSE := 0.0
 	for k := range ev.sensors {
@@ -602,7 +603,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 	if len(top) > 0 {
 		single = top[0].sse
 	}
-	if d.grownLeak(zi, ev, sg, size, now, why) || d.raisePair(zi, ev, sg, size, single, onset, now, why) {
+	if d.grownLeak(zi, fits, size, now, why) || d.raisePair(zi, ev, sg, fits, size, single, onset, now, why) {
 		return true
 	}
 	for i, r := range top {
@@ -614,14 +615,13 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 	return true
 }
 
-// grownLeak asks whether more water lost in zone zi (q L/s, the evidence
-// ev) is an open leak of the zone growing (a crack opening) rather than a
+// grownLeak asks whether more water lost in zone zi (q L/s; fits are the
+// zone's linear leak fits at q, leakFits) is an open leak of the zone growing (a crack opening) rather than a
 // second leak: it is when a leak of q at the open leak's best place fits
 // the residuals within 2 + 2·ln N of the best place of the zone (the
 // margin by which pairFit wants a second place; N the zone's junctions).
 // The open leak then grows by q, and true is returned.
-func (d *Detector) grownLeak(zi int, ev evidence, sg *signatures, q float64, now time.Time, why string) bool {
-	fits := d.leakFits(zi, ev, sg, q)
+func (d *Detector) grownLeak(zi int, fits []ranked, q float64, now time.Time, why string) bool {
 	best := math.Inf(1)
 	at := map[int]float64{}
 	for _, r := range fits {
@@ -653,8 +653,8 @@ func (d *Detector) grownLeak(zi int, ev evidence, sg *signatures, q float64, now
 
 // raisePair raises two leak findings in place of one when pairFit finds
 // that two leaks explain the change of size q clearly better.
-func (d *Detector) raisePair(zi int, ev evidence, sg *signatures, q, single float64, onset, now time.Time, why string) bool {
-	pair, ok := d.pairFit(zi, ev, sg, q, single)
+func (d *Detector) raisePair(zi int, ev evidence, sg *signatures, fits []ranked, q, single float64, onset, now time.Time, why string) bool {
+	pair, ok := d.pairFit(zi, ev, sg, fits, q, single)
 	if !ok {
 		return false
 	}
@@ -684,7 +684,8 @@ type leakPart struct {
 }
 
 // pairFit asks whether two leaks explain the residuals of a zone change
-// of q L/s clearly better than one (single is the misfit of the best one
+// of q L/s clearly better than one (fits are the zone's linear single-leak
+// fits at q, leakFits; single is the misfit of the best one
 // after the non-linear re-scoring: a large leak near a logger is far from
 // linear, and a linear single fit would leave a misfit that a second
 // place can take up): for each of the best single-leak
@@ -695,13 +696,12 @@ type leakPart struct {
 // parameter may buy (Akaike 1974) and the 2·ln N that choosing the second
 // place among N buys by chance (a Bonferroni bound on the best of N
 // one-parameter fits, our choice).
-func (d *Detector) pairFit(zi int, ev evidence, sg *signatures, q, single float64) ([2]leakPart, bool) {
+func (d *Detector) pairFit(zi int, ev evidence, sg *signatures, fits []ranked, q, single float64) ([2]leakPart, bool) {
 	var out [2]leakPart
 	junctions := d.zones[zi].junctions
 	if len(junctions) < 2 || len(ev.sensors) < 3 {
 		return out, false
 	}
-	fits := d.leakFits(zi, ev, sg, q)
 	best1 := single
 	for _, r := range fits {
 		best1 = math.Min(best1, r.sse)
@@ -976,7 +976,8 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		}
 		if hy.sg != nil {
 			why := fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)
-			if d.grownLeak(zi, ev, hy.sg, size, now, why) || d.raisePair(zi, ev, hy.sg, size, l.sse, onset, now, why) {
+			fits := d.leakFits(zi, ev, hy.sg, size)
+			if d.grownLeak(zi, fits, size, now, why) || d.raisePair(zi, ev, hy.sg, fits, size, l.sse, onset, now, why) {
 				return true
 			}
 		}

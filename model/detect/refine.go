@@ -139,11 +139,7 @@ func (d *Detector) rerank(w *watch) {
 				f.SizeLPS = round2(q)
 			}
 		}
-		short, _ := rank(d.leakFits(w.Zone, ev, sg, f.SizeLPS), shortlist)
-		top, scores := rank(d.refineLeaks(ev, sg, short, f.SizeLPS), d.cfg.Candidates)
-		for i, r := range top {
-			ids = append(ids, finding.Candidate{ID: d.net.Nodes[r.idx].ID, Score: round2(scores[i])})
-		}
+		ids = d.leakCandidates(ev, sg, f.SizeLPS)
 	case finding.Blockage:
 		short, _ := rank(d.blockageFits(w.Zone, ev, sg), shortlist)
 		top, scores := rank(d.refineBlockages(ev, sg, short), d.cfg.Candidates)
