@@ -23,21 +23,10 @@ func HazenWilliamsLoss(q, length, diameter, c float64) float64 {
 	return r * q * math.Pow(math.Abs(q), hwFlowExp-1)
 }
 
-// hwPow returns math.Pow(x, hwFlowExp-1) bit for bit, faster: for a
-// positive x of moderate size math.Pow's own steps for the exponent
-// 0.852 (Go's math/pow.go: the fraction above one half is taken as
-// 0.852 − 1 with one more integer power) reduce to
-// Exp((0.852−1)·Log(x)) times x, the multiplication by x being by its
-// mantissa then its power of two, which rounds as the plain product does
-// while nothing is subnormal. Other x go to math.Pow. The head-loss law
-// evaluates it for every pipe at every Newton iteration.
-func hwPow(x float64) float64 {
-	if !(x > 1e-250 && x < 1e250) {
-		return math.Pow(x, hwFlowExp-1)
-	}
-	y := float64(hwFlowExp - 1)
-	return math.Exp((y-1)*math.Log(x)) * x
-}
+// hwPow returns x^0.852 (math.Pow(x, hwFlowExp-1) to within a few ulp)
+// from hwPowTable: the head-loss law evaluates it for every pipe at every
+// Newton iteration.
+func hwPow(x float64) float64 { return hwPowTable.pow(x) }
 
 // hazenWilliamsResistance is the coefficient R of h = R Q|Q|^0.852
 // (m per (m³/s)^1.852).
