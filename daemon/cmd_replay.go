@@ -179,7 +179,9 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	}
 	res := &replayResult{Run: o.run, From: from, To: to}
 	pr := newProgress(progress, from, to)
-	popt := pipeline.Options{Config: cfg, Run: o.run, Store: sink, Start: from, Context: ctx}
+	// A replay knows its next snapshots: the model of the next steps is
+	// solved on other cores while the detector works (pipeline.Options).
+	popt := pipeline.Options{Config: cfg, Run: o.run, Store: sink, Start: from, Context: ctx, SolveAhead: true}
 	popt.OnStep = onStep
 	if o.trace != nil {
 		w := o.trace
@@ -189,6 +191,7 @@ func replay(ctx context.Context, o replayOptions, progress io.Writer, onStep fun
 	if err != nil {
 		return nil, err
 	}
+	defer p.Close()
 	// The detector starts from the calibration's residual scatter by
 	// hour of day when the configuration names a noise file.
 	if nf := cfg.Calibration.NoiseFile; nf != "" {

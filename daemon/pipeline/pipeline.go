@@ -58,7 +58,19 @@ type Options struct {
 	// Context, when set, stops the pipeline: steps after it is done are
 	// not processed and Add returns its error.
 	Context context.Context
+	// SolveAhead solves the hydraulic model of the next steps on other
+	// goroutines while the detector works on the current one
+	// (detect.Ahead): for replay, where the next snapshots are at hand.
+	// A step is then processed once aheadDepth later snapshots have
+	// closed, or at Flush; the live service leaves it off, so that each
+	// step is processed as soon as it closes. A pipeline with SolveAhead
+	// must be closed (Close).
+	SolveAhead bool
 }
+
+// aheadDepth is how many closed steps wait for their solves ahead of the
+// one being processed: one per worker of detect.Ahead.
+const aheadDepth = 2
 
 // Pipeline aligns readings, detects, and stores results.
 type Pipeline struct {
@@ -74,6 +86,8 @@ type Pipeline struct {
 	// describes the first.
 	jumped   int
 	jumpedEx string
+	// ahead solves queued steps ahead (Options.SolveAhead).
+	ahead *detect.Ahead
 }
 
 // DetectorConfig maps a service configuration onto the detector's.
@@ -122,7 +136,21 @@ func New(o Options) (*Pipeline, error) {
 		return nil, err
 	}
 	p.aligner = al
+	if o.SolveAhead {
+		if p.ahead, err = det.NewAhead(); err != nil {
+			return nil, err
+		}
+	}
 	return p, nil
+}
+
+// Close stops the solve-ahead's workers (Options.SolveAhead); steps still
+// queued are dropped (Flush first to process them). It is a no-op
+// without SolveAhead and may be called more than once.
+func (p *Pipeline) Close() {
+	if p.ahead != nil {
+		p.ahead.Close()
+	}
 }
 
 // Detector returns the pipeline's detector (for its state and findings).
@@ -177,6 +205,7 @@ func (p *Pipeline) Flush(end time.Time) error {
 		return p.err
 	}
 	p.aligner.Flush(end)
+	p.drain(0)
 	return p.err
 }
 
@@ -184,7 +213,35 @@ func (p *Pipeline) Flush(end time.Time) error {
 // latest candidates.
 func (p *Pipeline) Findings() []finding.Finding { return p.det.Findings() }
 
+// step takes the aligner's next snapshot: processed now, or, with the
+// solve-ahead, queued and processed aheadDepth snapshots later.
 func (p *Pipeline) step(snap telemetry.Snapshot) {
+	if p.ahead == nil {
+		p.process(snap)
+		return
+	}
+	if p.err != nil {
+		return
+	}
+	if err := p.ahead.Queue(snap); err != nil {
+		p.err = err
+		return
+	}
+	p.drain(aheadDepth)
+}
+
+// drain processes queued snapshots until at most keep remain.
+func (p *Pipeline) drain(keep int) {
+	if p.ahead == nil {
+		return
+	}
+	for q := p.ahead.Pending(); len(q) > keep && p.err == nil; q = q[1:] {
+		p.process(q[0])
+	}
+}
+
+// process runs the detector on one snapshot and stores the results.
+func (p *Pipeline) process(snap telemetry.Snapshot) {
 	if p.err != nil {
 		return
 	}
@@ -192,7 +249,13 @@ func (p *Pipeline) step(snap telemetry.Snapshot) {
 		p.err = err
 		return
 	}
-	res, err := p.det.Step(snap)
+	var res *detect.StepResult
+	var err error
+	if p.ahead != nil {
+		res, err = p.ahead.Step(snap)
+	} else {
+		res, err = p.det.Step(snap)
+	}
 	if err != nil {
 		p.err = err
 		return

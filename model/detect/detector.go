@@ -230,6 +230,9 @@ type StepResult struct {
 	Findings, Updated []finding.Finding
 	// Iterations of the two solves.
 	Iterations int
+	// Presolved says the inflow-matched solve came from a solve-ahead
+	// (Ahead) rather than from the step itself.
+	Presolved bool
 	// Elapsed is the wall time the step took.
 	Elapsed time.Duration
 }
@@ -516,7 +519,11 @@ func (d *Detector) Restore(b []byte) error {
 
 // Step processes one snapshot. Its values must be in the order of
 // Config.Sensors (as the aligner produces them).
-func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
+func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) { return d.step(snap, nil) }
+
+// step is Step, taking the solves from pre (a solve-ahead of this step)
+// where pre's conditions are this step's.
+func (d *Detector) step(snap telemetry.Snapshot, pre *presolve) (*StepResult, error) {
 	if len(snap.Values) != len(d.sens) {
 		return nil, fmt.Errorf("detector: snapshot at %s has %d values for %d sensors", snap.Step.Format(time.RFC3339), len(snap.Values), len(d.sens))
 	}
@@ -531,60 +538,24 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	d.qualityFaults(snap)
 
 	// Boundary conditions from telemetry: tank levels, source heads.
-	nn := len(d.net.Nodes)
-	if d.cond.FixedHead == nil {
-		d.cond.FixedHead = make([]float64, nn)
-		d.cond.Demand = make([]float64, nn)
-	}
-	for i := range d.cond.FixedHead {
-		d.cond.FixedHead[i] = math.NaN()
-	}
-	if d.cond.Status == nil {
-		d.cond.Status = make([]network.Status, len(d.net.Links))
-	}
-	for l := range d.net.Links {
-		d.cond.Status[l] = d.net.Links[l].Status
-	}
-	for si, info := range d.sens {
-		a := snap.Values[si]
-		if !usable(a) || d.st.Sensors[si].Excluded {
-			continue
-		}
-		if info.link >= 0 {
-			// A pump whose own flow meter reads less than a tenth of its
-			// duty flow, or within three σ of zero, is stopped.
-			if d.net.Links[info.link].Kind == network.Pump && math.Abs(a.Value) < info.pumpOff {
-				d.cond.Status[info.link] = network.Closed
-			}
-			continue
-		}
-		n := &d.net.Nodes[info.node]
-		switch {
-		case info.s.Quantity == telemetry.Level && n.Kind == network.Tank:
-			d.cond.FixedHead[info.node] = n.Elevation + a.Value
-		case info.s.Quantity == telemetry.Head && n.IsFixedHead():
-			d.cond.FixedHead[info.node] = a.Value
-		}
-	}
+	d.bounds(&d.cond, snap, d.excluded)
 
 	// Expected-consumption solve: demand from the patterns alone. Its one
 	// use is the leakage the model itself carries (junction leak
 	// coefficients of the network file, FAVAD); without any, expected
 	// consumption is the patterns' demand and the solve is skipped.
-	d.base = demand.Base(d.net, t, d.zoneLoc, d.base)
+	if pre != nil {
+		d.base = append(d.base[:0], pre.base...) // demand.Base at t, made ahead
+	} else {
+		d.base = demand.Base(d.net, t, d.zoneLoc, d.base)
+	}
 	copy(d.cond.Demand, d.base)
 	var modelLeak []float64
 	if d.leaky {
-		// Solved into the previous step's solution, its warm start: the
-		// same numbers as a fresh Solution, without 0.6 MB a step
-		// (5,000 junctions) to collect. After an error that memory holds
-		// no solution, so the next step starts cold.
-		exp, err := d.solver.SolveInto(&d.cond, d.prevExp, d.prevExp)
+		exp, err := d.expSolve(pre)
 		if err != nil {
-			d.prevExp = nil
 			return nil, fmt.Errorf("detector at %s: expected-consumption solve: %w", t.Format(time.RFC3339), err)
 		}
-		d.prevExp = exp
 		res.Iterations += exp.Iterations
 		modelLeak = exp.Leak
 	}
@@ -594,22 +565,14 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	res.Zones = make([]ZoneBalance, len(d.zones))
 	for zi := range d.zones {
 		zb := ZoneBalance{Zone: d.zones[zi].z.ID, Multiplier: 1}
-		inflow, ok := d.zoneInflow(zi, snap)
-		dem, leak := 0.0, 0.0
-		for _, j := range d.zones[zi].junctions {
-			dem += d.base[j]
-			if modelLeak != nil {
-				leak += modelLeak[j]
-			}
-		}
+		inflow, ok := d.zoneInflow(zi, func(si int) (float64, bool) { return d.meterValue(si, snap) })
+		dem, leak := d.zoneDemand(zi, d.base, modelLeak)
 		zb.ExpectedLPS = dem + leak
 		mult[zi] = 1
 		if ok {
 			zb.InflowLPS = inflow
 			zb.Imbalance = inflow - zb.ExpectedLPS
-			if dem > 0 {
-				mult[zi] = math.Min(5, math.Max(0, (inflow-leak)/dem))
-			}
+			mult[zi] = multiplier(inflow, dem, leak)
 			d.st.ZoneAcc[zi].Sum += zb.Imbalance
 			d.st.ZoneAcc[zi].N++
 			d.st.ZoneExp[zi].Sum += zb.ExpectedLPS
@@ -632,17 +595,12 @@ func (d *Detector) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	res.Nights = d.closeNights(t)
 
 	// Inflow-matched solve: each zone's demand scaled to its measured inflow.
-	for i := range d.cond.Demand {
-		if zi := d.nodeZone[i]; zi >= 0 {
-			d.cond.Demand[i] = d.base[i] * mult[zi]
-		}
-	}
-	mat, err := d.solver.SolveInto(&d.cond, d.prevMat, d.prevMat)
+	d.matchDemand(d.cond.Demand, d.base, mult)
+	mat, presolved, err := d.matSolve(pre, mult)
+	res.Presolved = presolved
 	if err != nil {
-		d.prevMat = nil
 		return nil, fmt.Errorf("detector at %s: inflow-matched solve: %w", t.Format(time.RFC3339), err)
 	}
-	d.prevMat = mat
 	res.Iterations += mat.Iterations
 
 	res.Expected = make([]float64, len(d.sens))
@@ -682,11 +640,14 @@ func usable(a telemetry.Aggregate) bool {
 	return a.Quality.Usable() && a.Count > 0 && !math.IsNaN(a.Value) && !math.IsInf(a.Value, 0)
 }
 
-func (d *Detector) zoneInflow(zi int, snap telemetry.Snapshot) (float64, bool) {
+// zoneInflow is the zone's net metered inflow, each meter's value from
+// value (the detector's meterValue, or the solve-ahead's copy of it); not
+// ok if a meter has none.
+func (d *Detector) zoneInflow(zi int, value func(si int) (float64, bool)) (float64, bool) {
 	q := 0.0
 	for _, list := range [][]meter{d.zones[zi].inlets, d.zones[zi].outlets} {
 		for _, m := range list {
-			v, ok := d.meterValue(m.sensor, snap)
+			v, ok := value(m.sensor)
 			if !ok {
 				return 0, false
 			}
@@ -1150,7 +1111,7 @@ func (d *Detector) lossFinding(zi int, snap telemetry.Snapshot) {
 			}
 		}
 	}
-	inflow, ok := d.zoneInflow(zi, snap)
+	inflow, ok := d.zoneInflow(zi, func(si int) (float64, bool) { return d.meterValue(si, snap) })
 	expected := 0.0
 	for _, j := range d.zones[zi].junctions {
 		if d.base != nil {
