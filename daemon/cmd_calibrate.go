@@ -32,6 +32,7 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	noise := fs.String("noise", "", "write the residual scatter by sensor and hour here (JSON; default: beside --out, <name>.noise.json)")
 	interval := fs.Duration("interval", time.Hour, "time between the snapshots the fit uses")
 	asJSON := fs.Bool("json", false, "print the report as JSON on stdout")
+	asRecorded := fs.Bool("as-recorded", false, "keep every link's status as recorded: name suspected shut valves in the report, but do not shut the best one in the calibrated network")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -102,7 +103,13 @@ func runCalibrate(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		zones[z.ID] = z.TimeZone
 		balances[z.ID] = calib.ZoneMeters{Inlets: z.Inlets, Outlets: z.Outlets}
 	}
-	res, err := calib.Fit(ctx, calib.Problem{Network: cfg.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones, Balances: balances}, calib.Settings{Interval: *interval})
+	// The fit, then (unless --as-recorded) the same fit with the link the
+	// closed-valve check names shut, kept if it validates better.
+	fit := calib.FitChecked
+	if *asRecorded {
+		fit = calib.Fit
+	}
+	res, err := fit(ctx, calib.Problem{Network: cfg.Network, Sensors: cfg.Sensors, Snapshots: kept, Zones: zones, Balances: balances}, calib.Settings{Interval: *interval})
 	if err != nil {
 		return err
 	}

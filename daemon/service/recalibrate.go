@@ -187,7 +187,7 @@ func (s *Service) Recalibrate(ctx context.Context) (*Decision, error) {
 		zones[z.ID] = z.TimeZone
 		balances[z.ID] = calib.ZoneMeters{Inlets: z.Inlets, Outlets: z.Outlets}
 	}
-	res, err := calib.Fit(ctx, calib.Problem{Network: s.cfg.Network, Sensors: s.cfg.Sensors, Snapshots: snaps, Zones: zones, Balances: balances}, calib.Settings{})
+	res, err := calib.FitChecked(ctx, calib.Problem{Network: s.cfg.Network, Sensors: s.cfg.Sensors, Snapshots: snaps, Zones: zones, Balances: balances}, calib.Settings{})
 	if err != nil {
 		return nil, fmt.Errorf("recalibration: %w", err)
 	}

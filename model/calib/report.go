@@ -107,6 +107,15 @@ func (r *Result) WriteText(w io.Writer) error {
 	if len(r.Suspects) > 0 {
 		fmt.Fprintln(&b, "These are hypotheses from the readings; confirm in the field by the utility's valve-operation procedures.")
 	}
+	if len(r.Applied) > 0 {
+		fmt.Fprintln(&b, "\nChanged in the calibrated network")
+		for _, a := range r.Applied {
+			fmt.Fprintf(&b, "- %s shut: the fit with it shut validates better on the held-out days (misfit per reading %.4g, against %.4g with it open as recorded)\n",
+				a.Link, a.ValidationShut, a.ValidationAsRecorded)
+		}
+		fmt.Fprintln(&b, "This changes the model only. A link in series with the one named fits the same; confirm on site which valve is shut, and")
+		fmt.Fprintln(&b, "operate valves only under the utility's procedures and local codes (pressure changes, water quality after a flow reversal).")
+	}
 	if len(r.Warnings) > 0 {
 		fmt.Fprintln(&b, "\nWarnings")
 		for _, w := range r.Warnings {

@@ -209,6 +209,9 @@ type Result struct {
 	Sensors     []SensorFit  `json:"sensors"`
 	Validation  Validation   `json:"validation"`
 	Suspects    []Suspect    `json:"suspects"`
+	// Applied are the links FitChecked shut in the calibrated network
+	// because the readings insist on it (none from Fit).
+	Applied []Applied `json:"applied,omitempty"`
 	// Warnings name the inputs left out (sensors, snapshots) and other
 	// things a reader should know.
 	Warnings []string `json:"warnings,omitempty"`
