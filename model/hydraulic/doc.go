@@ -62,6 +62,15 @@
 // which alters the Newton step only, never the residuals that decide
 // convergence.
 //
+// SolveNear is for runs of solves near one another (a localisation's trial
+// blockages and leaks): a link whose slope dh/dQ moved less than 5% since
+// it was factored keeps the factored slope, in the matrix and in its flow
+// update alike, so that continuity still holds after each step and the
+// factor is brought up to date only in the rows that changed
+// (sparse.Factor.Refactorize). The iteration is then Newton's with an
+// approximate derivative, converging to the same solution within the same
+// tolerances in as many steps on the generated towns (near.go).
+//
 // # Pressures near and below zero
 //
 // Demands are taken as given (a demand-driven model): where the supply

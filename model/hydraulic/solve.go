@@ -469,6 +469,9 @@ func (s *Solver) coefficients(sol *Solution) {
 			} else {
 				h, g, sc = s.lawOpen(k, q, sol)
 			}
+			if s.near != nil {
+				g = s.near.slope(k, g) // SolveNear (near.go)
+			}
 			s.p[k] = 1 / g
 			s.y[k] = (h - dh) / g
 			s.s[k] = sc

@@ -106,6 +106,9 @@ type Solver struct {
 
 	// warm keeps a warm start that SolveInto is about to overwrite.
 	warm Solution
+	// near is set during SolveNear (near.go): the link slopes and the
+	// factor it keeps from solve to solve.
+	near *Near
 	// connClosed is the closed-link pattern of the last successful
 	// connectivity check (connOK): the check depends on nothing else.
 	connClosed []bool

@@ -84,6 +84,16 @@
 // supernodal factorisation is 2 to 6 times faster. The threshold is our
 // measurement, not from a source. Both give the same factor to rounding.
 //
+// Refactorize recomputes, with the simplicial method, only the rows of L
+// that a change confined to some rows of the matrix reaches: those rows
+// and their ancestors in the elimination tree (a row of L depends on its
+// subtree only; Liu 1990, §3), by the same operations as Factorize, so
+// the factor is the one Factorize would give, bit for bit. The top of the
+// tree is on every path, so on a generated town of 100,000 junctions one
+// changed row still costs about a fifth of a full factorisation (≈ 3 ms
+// against 14 ms, 200 of 100,000 rows); a hundred rows near one another
+// about a quarter.
+//
 // The order of operations is fixed by the pattern, so equal input gives
 // bit-identical output on one machine; results may differ in the last bits
 // between processors with and without fused multiply-add.

@@ -18,6 +18,9 @@ type Factor struct {
 	ws     [2]workspace
 	x      []float64 // permuted right-hand side / solution
 	ok     bool      // the last Factorize succeeded
+	// touched marks the rows (permuted) Refactorize recomputes; false
+	// between calls. Allocated by the first Refactorize.
+	touched []bool
 
 	// Goroutines to use: Options.Workers, at most GOMAXPROCS.
 	workers int

@@ -134,43 +134,54 @@ func simplicialFits(nnzL, nIn int) bool { return nnzL < 1<<31-1 && nIn < 1<<31-1
 // s.simp) and returns the permuted column of the first failed pivot, or
 // -1, with the pivot in f.ws[0].pivot. x is zero on entry and on return.
 func (f *Factor) factorSimplicial(diag, offdiag []float64) int {
+	for k := 0; k < f.sym.n; k++ {
+		if !f.simplicialRow(k, diag, offdiag) {
+			return k
+		}
+	}
+	return -1
+}
+
+// simplicialRow computes row k of L (permuted labels) from row k of the
+// matrix and the rows of L above it, and reports whether its pivot was
+// positive (if not, the pivot is in f.ws[0].pivot). f.x is zero on entry
+// and on return.
+func (f *Factor) simplicialRow(k int, diag, offdiag []float64) bool {
 	s := f.sym
 	sp := s.simp
 	L, x := f.values, f.x
 	colPtr, rowIdx := sp.colPtr, sp.rowIdx
-	for k := 0; k < s.n; k++ {
-		x[k] = diag[s.perm[k]]
-		for q := sp.aPtr[k]; q < sp.aPtr[k+1]; q++ {
-			x[sp.aCol[q]] += offdiag[sp.aEnt[q]]
-		}
-		d := x[k]
-		x[k] = 0
-		row := sp.row[sp.rowPtr[k]:sp.rowPtr[k+1]]
-		for _, e := range row {
-			// L(k, j) = (x_j − Σ_{i<j} L(k,i) L(j,i)) / L(j,j); the sum was
-			// subtracted from x_j as the earlier columns were done.
-			j := e.col
-			c0 := colPtr[j]
-			lkj := x[j] / L[c0]
-			x[j] = 0
-			// Column j's entries in rows between j and k update those rows
-			// of row k.
-			rows := rowIdx[c0+1 : e.pos]
-			vals := L[c0+1 : e.pos]
-			vals = vals[:len(rows)]
-			for i, r := range rows {
-				x[r] -= vals[i] * lkj
-			}
-			d -= lkj * lkj
-			L[e.pos] = lkj
-		}
-		if !(d > 0) || math.IsInf(d, 1) {
-			f.ws[0].pivot = d
-			return k
-		}
-		L[colPtr[k]] = math.Sqrt(d)
+	x[k] = diag[s.perm[k]]
+	for q := sp.aPtr[k]; q < sp.aPtr[k+1]; q++ {
+		x[sp.aCol[q]] += offdiag[sp.aEnt[q]]
 	}
-	return -1
+	d := x[k]
+	x[k] = 0
+	row := sp.row[sp.rowPtr[k]:sp.rowPtr[k+1]]
+	for _, e := range row {
+		// L(k, j) = (x_j − Σ_{i<j} L(k,i) L(j,i)) / L(j,j); the sum was
+		// subtracted from x_j as the earlier columns were done.
+		j := e.col
+		c0 := colPtr[j]
+		lkj := x[j] / L[c0]
+		x[j] = 0
+		// Column j's entries in rows between j and k update those rows
+		// of row k.
+		rows := rowIdx[c0+1 : e.pos]
+		vals := L[c0+1 : e.pos]
+		vals = vals[:len(rows)]
+		for i, r := range rows {
+			x[r] -= vals[i] * lkj
+		}
+		d -= lkj * lkj
+		L[e.pos] = lkj
+	}
+	if !(d > 0) || math.IsInf(d, 1) {
+		f.ws[0].pivot = d
+		return false
+	}
+	L[colPtr[k]] = math.Sqrt(d)
+	return true
 }
 
 // solveSimplicial solves L Lᵀ x = x in place (permuted order).
