@@ -32,6 +32,10 @@ type calReport struct {
 		Link   string `json:"link"`
 		Closed bool   `json:"closed"`
 	} `json:"suspects"`
+	// Applied are the links calibrate shut in the calibrated network.
+	Applied []struct {
+		Link string `json:"link"`
+	} `json:"applied"`
 }
 
 // groupFit is one roughness group of one calibration against its truth.
@@ -50,9 +54,11 @@ func (g groupFit) within2() bool { return math.Abs(g.est-g.truth) <= 2*g.se }
 type calRun struct {
 	groups []groupFit
 	// shut are the links shut in truth but open in the records; named
-	// those of them among the suspects; others the suspects that are not.
-	shut, named []string
-	others      int
+	// those of them among the suspects or shut by calibrate, applied those
+	// shut by calibrate; others the suspects (and links shut by calibrate)
+	// that are not shut in truth.
+	shut, named, applied []string
+	others               int
 }
 
 // trueNets finds and caches true networks.
@@ -132,9 +138,12 @@ func readCalibration(path string, rec *network.Network, truths *trueNets, net, c
 		out.groups = append(out.groups, groupFit{name: p.Group, prior: p.Prior, truth: tv, est: p.Estimate, se: p.StdErr,
 			identified: p.Identifiable, departure: math.Abs(math.Log(tv / p.Prior))})
 	}
-	suspects := map[string]bool{}
+	suspects, applied := map[string]bool{}, map[string]bool{}
 	for _, s := range rep.Suspects {
 		suspects[s.Link] = true
+	}
+	for _, a := range rep.Applied {
+		suspects[a.Link], applied[a.Link] = true, true
 	}
 	for l := range rec.Links {
 		if tn.Links[l].Status == network.Closed && rec.Links[l].Status != network.Closed {
@@ -143,6 +152,9 @@ func readCalibration(path string, rec *network.Network, truths *trueNets, net, c
 			if suspects[id] {
 				out.named = append(out.named, id)
 				delete(suspects, id)
+			}
+			if applied[id] {
+				out.applied = append(out.applied, id)
 			}
 		}
 	}
@@ -224,6 +236,7 @@ func printCalibration(w io.Writer, cals []calRun) {
 	}
 	shut := map[string]int{}
 	named := map[string]int{}
+	applied := map[string]int{}
 	others := 0
 	for _, c := range cals {
 		for _, l := range c.shut {
@@ -231,6 +244,9 @@ func printCalibration(w io.Writer, cals []calRun) {
 		}
 		for _, l := range c.named {
 			named[l]++
+		}
+		for _, l := range c.applied {
+			applied[l]++
 		}
 		others += c.others
 	}
@@ -241,7 +257,7 @@ func printCalibration(w io.Writer, cals []calRun) {
 	sort.Strings(ids)
 	var parts []string
 	for _, l := range ids {
-		parts = append(parts, fmt.Sprintf("%s named in %d of %d runs", l, named[l], shut[l]))
+		parts = append(parts, fmt.Sprintf("%s named in %d of %d runs (shut by calibrate in %d)", l, named[l], shut[l], applied[l]))
 	}
 	if len(parts) > 0 {
 		fmt.Fprintf(w, "  links shut in truth, open in the records: %s; other links suspected: %d in %d runs\n", strings.Join(parts, ", "), others, len(cals))

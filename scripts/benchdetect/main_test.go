@@ -172,7 +172,7 @@ func TestCalibrationLines(t *testing.T) {
 		{"kind": "roughness", "group": "pvc-1980s", "prior": 137.3, "estimate": 140, "std_err": 1, "identifiable": true},
 		{"kind": "roughness", "group": "pe-2010s", "prior": 138.9, "estimate": 138.9, "std_err": 280, "identifiable": false},
 		{"kind": "demand-multiplier", "zone": "central", "prior": 1, "estimate": 1.1, "std_err": 0.05, "identifiable": true}],
-		"suspects": [{"link": "P-48", "closed": true}, {"link": "P-1"}]}`), 0o644)
+		"suspects": [{"link": "P-1"}], "applied": [{"link": "P-48"}]}`), 0o644)
 	suite := filepath.Join(res, "suite.tsv")
 	os.WriteFile(suite, []byte(strings.Join([]string{"demo", "aged-calibrated", "testdata/scenarios/demo/aged/quiet-60d.yaml",
 		"configs/demo-town.geojson", "configs/demo-town.yaml",
@@ -185,7 +185,7 @@ func TestCalibrationLines(t *testing.T) {
 	for _, want := range []string{
 		`calibration: 1 runs; roughness groups identified 2 of 3, true C within 2 s\.e\. of the estimate in 1 of those \(50%\)`,
 		`group departing most from its record, cast-iron-1930s: recorded 83\.5, true 50\.1; identified in 1 of 1 runs, estimate median 51\.0, 51\.0 to 51\.0, true within 2 s\.e\. in 1 of 1`,
-		`links shut in truth, open in the records: P-48 named in 1 of 1 runs; other links suspected: 1 in 1 runs`,
+		`links shut in truth, open in the records: P-48 named in 1 of 1 runs \(shut by calibrate in 1\); other links suspected: 1 in 1 runs`,
 	} {
 		if !regexp.MustCompile(want).MatchString(got) {
 			t.Errorf("output lacks /%s/:\n%s", want, got)
