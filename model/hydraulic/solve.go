@@ -470,7 +470,7 @@ func (s *Solver) coefficients(sol *Solution) {
 				h, g, sc = s.lawOpen(k, q, sol)
 			}
 			if s.near != nil {
-				g = s.near.slope(k, g) // SolveNear (near.go)
+				g = s.near.slope(k, g, s.dQ[k]) // SolveNear (near.go)
 			}
 			s.p[k] = 1 / g
 			s.y[k] = (h - dh) / g
