@@ -55,6 +55,9 @@ type Detector struct {
 	// candidate's trial solutions to start its later solves from.
 	near *hydraulic.Near
 	path trialPath
+	// graph is the network's incidence for passiveBridge, made by its
+	// first call.
+	graph linkGraph
 
 	designNight, designBurst, designResid CUSUM
 

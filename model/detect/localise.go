@@ -245,17 +245,28 @@ func (d *Detector) fitOpenFraction(l int, ev evidence, rs *responses) (float64, 
 	for k := range ys {
 		ys[k] = []float64{0}
 	}
+	// A pipe into a part without a source of its own changes heads
+	// beyond it only, linearly in its resistance (bridge.go).
+	bridge := d.passiveBridge(l, rs.sg.ref)
+	respond := func(factor float64) ([]float64, error) {
+		if bridge {
+			return bridgeResponse(rs.sg, l, factor), nil
+		}
+		return rs.resistance(l, factor)
+	}
 	path := &d.path
 	path.reset()
 	path.keep(0, rs.sg.ref)
 	for i, f := range openSamples {
 		rs.chain = i > 0
-		dh, err := rs.resistance(l, 1/(f*f))
+		dh, err := respond(1 / (f * f))
 		if err != nil {
 			break // e.g. the link cut a part of the network off: fit what solved
 		}
 		xs = append(xs, -2*math.Log(f))
-		path.keep(xs[len(xs)-1], d.trial)
+		if !bridge {
+			path.keep(xs[len(xs)-1], d.trial)
+		}
 		for k := range ys {
 			ys[k] = append(ys[k], dh[k])
 		}
@@ -275,8 +286,10 @@ func (d *Detector) fitOpenFraction(l int, ev evidence, rs *responses) (float64, 
 	}, 0, xmax, 40)
 	f := math.Exp(-x / 2)
 	rs.chain = false
-	rs.from = path.around(x)
-	dh, err := rs.resistance(l, 1/(f*f))
+	if !bridge {
+		rs.from = path.around(x)
+	}
+	dh, err := respond(1 / (f * f))
 	if err != nil {
 		return math.NaN(), math.Inf(1)
 	}
