@@ -50,6 +50,14 @@ type Detector struct {
 	// the last trial solve.
 	sensBuf *hydraulic.Sensitivity
 	trial   *hydraulic.Solution
+	// near keeps the trial solves' Newton matrix from one to the next
+	// (hydraulic.SolveNear), made by the first; path keeps one
+	// candidate's trial solutions to start its later solves from.
+	near *hydraulic.Near
+	path trialPath
+	// graph is the network's incidence for passiveBridge, made by its
+	// first call.
+	graph linkGraph
 
 	designNight, designBurst, designResid CUSUM
 

@@ -105,7 +105,7 @@ func TestSolveNearTown(t *testing.T) {
 		opt  netgen.Options
 		dw   bool
 	}{
-		{"hazen-williams", netgen.Options{Junctions: 1500, Seed: 3, Tank: true, Zones: 2}, false},
+		{"hazen-williams", netgen.Options{Junctions: 5000, Seed: 3, Tank: true, Zones: 2}, false},
 		{"darcy-weisbach-leaks", netgen.Options{Junctions: 1000, Seed: 5}, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {

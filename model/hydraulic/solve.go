@@ -105,6 +105,7 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 	if (c.LeakCoeff == nil) != (c.LeakExponent == nil) {
 		return nil, errors.New("hydraulic: conditions: LeakCoeff and LeakExponent must be given together")
 	}
+	s.condLeak = c.LeakCoeff != nil
 	sol := dst
 	if sol == nil {
 		sol = &Solution{
@@ -162,10 +163,11 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 			sol.leakC[i], sol.leakN[i] = lc, le
 		}
 	}
-	for k := range net.Links {
-		l := &net.Links[k]
-		m := &s.lm[k]
-		st := l.Status
+	// The links' fields from the Solver's tables (the packed hot table and
+	// the statuses); the network's Link only for pumps and valves.
+	for k := range s.hot {
+		kind := s.hot[k].kind
+		st := s.status[k]
 		if c.Status != nil {
 			st = c.Status[k]
 		}
@@ -173,12 +175,13 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 		if c.ResistanceFactor != nil {
 			f := c.ResistanceFactor[k]
 			if !(f > 0) || bad(f) {
-				return nil, fmt.Errorf("hydraulic: conditions: link %s: resistance factor must be positive, got %g", l.ID, f)
+				return nil, fmt.Errorf("hydraulic: conditions: link %s: resistance factor must be positive, got %g", net.Links[k].ID, f)
 			}
 			sol.factor[k] = f
 		}
-		switch m.kind {
+		switch kind {
 		case lkPump:
+			l := &net.Links[k]
 			sp := l.Speed
 			if sp == 0 {
 				sp = 1 // zero value of Link.Speed means nominal
@@ -194,6 +197,7 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 				st = network.Closed
 			}
 		case lkValve:
+			l, m := &net.Links[k], &s.lm[k]
 			set := l.Setting
 			if c.ValveSetting != nil && !math.IsNaN(c.ValveSetting[k]) {
 				set = c.ValveSetting[k]
@@ -206,9 +210,12 @@ func (s *Solver) newSolution(c *Conditions, dst *Solution) (*Solution, error) {
 			}
 			sol.setting[k] = set
 		}
-		if st == network.Closed {
+		switch {
+		case st == network.Closed:
 			sol.State[k] = Closed
-		} else {
+		case kind == lkPipe:
+			sol.State[k] = Open // defaultState of a pipe
+		default:
 			sol.State[k] = s.defaultState(k)
 		}
 	}
@@ -347,6 +354,9 @@ func (s *Solver) initialise(sol *Solution, warm *Solution) {
 // approaches the solution from above instead of overshooting it.
 func (s *Solver) initLeaks(sol *Solution) {
 	s.leaks = s.leaks[:0]
+	if !s.netLeak && !s.condLeak {
+		return // no leak anywhere: the loop below would add none
+	}
 	for _, i := range s.node {
 		n := &s.net.Nodes[i]
 		if n.LeakCoeff == 0 && sol.leakC[i] == 0 {
@@ -470,7 +480,7 @@ func (s *Solver) coefficients(sol *Solution) {
 				h, g, sc = s.lawOpen(k, q, sol)
 			}
 			if s.near != nil {
-				g = s.near.slope(k, g) // SolveNear (near.go)
+				g = s.near.slope(k, g, s.dQ[k]) // SolveNear (near.go)
 			}
 			s.p[k] = 1 / g
 			s.y[k] = (h - dh) / g
@@ -779,8 +789,8 @@ func (s *Solver) finish(sol *Solution) {
 			sol.Demand[i] = 0
 		}
 	}
-	for k := range s.lm {
-		m := &s.lm[k]
+	for k := range s.hot {
+		m := &s.hot[k]
 		q := sol.Flow[k]
 		if m.jf < 0 {
 			sol.Demand[m.from] -= q
@@ -789,8 +799,8 @@ func (s *Solver) finish(sol *Solution) {
 			sol.Demand[m.to] += q
 		}
 		sol.Headloss[k] = sol.Head[m.from] - sol.Head[m.to]
-		if m.area > 0 {
-			sol.Velocity[k] = q / 1000 / m.area
+		if a := s.area[k]; a > 0 {
+			sol.Velocity[k] = q / 1000 / a
 		}
 	}
 }

@@ -79,11 +79,18 @@ type Solver struct {
 	// iteration, packed (40 bytes a link against linkModel's 152): the
 	// loops over links stream through it instead.
 	hot []linkHot
+	// Per link, what each solve reads of the network besides the laws:
+	// the status, and the area (m², 0 for pumps) that gives the velocity.
+	status []network.Status
+	area   []float64
 	// netLeak says some junction of the network has a leak coefficient;
 	// leakBad is the first junction whose own leak data is not valid
 	// (-1: none), so that each solve need not look again.
 	netLeak bool
 	leakBad int
+	// condLeak says the conditions of the solve under way give leaks
+	// (set by newSolution), so that initLeaks need not look for them.
+	condLeak bool
 	// Per node, what each solve reads of the network: elevation, base
 	// demand, fixed head (reservoirs and tanks), and whether it is a tank.
 	elev, baseDemand, fixedHead []float64
@@ -239,6 +246,10 @@ func NewSolver(net *network.Network, opt Options) (*Solver, error) {
 		m := &s.lm[k]
 		s.hot[k] = linkHot{from: int32(m.from), to: int32(m.to), jf: int32(m.jf), jt: int32(m.jt), entry: int32(m.entry),
 			kind: m.kind, hw: m.kind == lkPipe && !m.dw, plain: m.kind == lkPipe && !m.cv, hwR: m.hwR, minor: m.minor}
+	}
+	s.status, s.area = make([]network.Status, nl), make([]float64, nl)
+	for k := range s.lm {
+		s.status[k], s.area[k] = net.Links[k].Status, s.lm[k].area
 	}
 	s.leakBad = -1
 	s.elev, s.baseDemand, s.fixedHead, s.tank = make([]float64, nn), make([]float64, nn), make([]float64, nn), make([]bool, nn)
