@@ -78,21 +78,29 @@ func shutCandidate(t *testing.T, net *network.Network, sensors []telemetry.Senso
 	return pick.id
 }
 
-// TestShutValveNamed checks that a link shut in the true network but open
-// in the records is named among the suspected closed links, when the
-// true network also differs in roughness.
-func TestShutValveNamed(t *testing.T) {
+// shutScenario is the demo town as recorded, its loggers, the main shut
+// in truth (shutCandidate), and three days of readings from the true
+// network (that main shut, roughness off by up to 15 %).
+func shutScenario(t *testing.T) (net *network.Network, sensors []telemetry.Sensor, shut string, snaps []telemetry.Snapshot) {
+	t.Helper()
 	net, err := netgen.DemoTown()
 	if err != nil {
 		t.Fatal(err)
 	}
-	sensors := netgen.DemoSensors(net)
-	shut := shutCandidate(t, net, sensors)
+	sensors = netgen.DemoSensors(net)
+	shut = shutCandidate(t, net, sensors)
 	truth, _, err := sim.Perturb(net, sim.Mismatch{Roughness: 0.15, Shut: []string{shut}, Seed: 5})
 	if err != nil {
 		t.Fatal(err)
 	}
-	snaps := simulate(t, truth, sensors, monday, 3, 21, nil)
+	return net, sensors, shut, simulate(t, truth, sensors, monday, 3, 21, nil)
+}
+
+// TestShutValveNamed checks that a link shut in the true network but open
+// in the records is named among the suspected closed links, when the
+// true network also differs in roughness.
+func TestShutValveNamed(t *testing.T) {
+	net, sensors, shut, snaps := shutScenario(t)
 	res, err := Fit(context.Background(), Problem{Network: net, Sensors: sensors, Snapshots: snaps}, Settings{})
 	if err != nil {
 		t.Fatal(err)
@@ -141,17 +149,7 @@ func TestShutValveNamed(t *testing.T) {
 // on the held-out day, by FitChecked's own rule), and changes nothing
 // when the records are right.
 func TestFitCheckedShutsTheValve(t *testing.T) {
-	net, err := netgen.DemoTown()
-	if err != nil {
-		t.Fatal(err)
-	}
-	sensors := netgen.DemoSensors(net)
-	shut := shutCandidate(t, net, sensors)
-	truth, _, err := sim.Perturb(net, sim.Mismatch{Roughness: 0.15, Shut: []string{shut}, Seed: 5})
-	if err != nil {
-		t.Fatal(err)
-	}
-	snaps := simulate(t, truth, sensors, monday, 3, 21, nil)
+	net, sensors, shut, snaps := shutScenario(t)
 	res, err := FitChecked(context.Background(), Problem{Network: net, Sensors: sensors, Snapshots: snaps}, Settings{})
 	if err != nil {
 		t.Fatal(err)
