@@ -235,8 +235,8 @@ func (p *Pipeline) drain(keep int) {
 	if p.ahead == nil {
 		return
 	}
-	for q := p.ahead.Pending(); len(q) > keep && p.err == nil; q = q[1:] {
-		p.process(q[0])
+	for p.ahead.Len() > keep && p.err == nil {
+		p.process(p.ahead.Oldest())
 	}
 }
 

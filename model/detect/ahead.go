@@ -3,6 +3,7 @@ package detect
 import (
 	"errors"
 	"math"
+	"slices"
 	"sync"
 	"time"
 
@@ -136,14 +137,12 @@ func (a *Ahead) Step(snap telemetry.Snapshot) (*StepResult, error) {
 	return res, err
 }
 
-// Pending returns the snapshots queued and not yet stepped, oldest first.
-func (a *Ahead) Pending() []telemetry.Snapshot {
-	out := make([]telemetry.Snapshot, len(a.queued))
-	for i, p := range a.queued {
-		out[i] = p.snap
-	}
-	return out
-}
+// Len returns how many queued snapshots are not yet stepped.
+func (a *Ahead) Len() int { return len(a.queued) }
+
+// Oldest returns the oldest queued snapshot not yet stepped (Len > 0),
+// the one Step takes next.
+func (a *Ahead) Oldest() telemetry.Snapshot { return a.queued[0].snap }
 
 // Close stops the workers after the solves in flight and waits for them.
 func (a *Ahead) Close() {
@@ -166,12 +165,10 @@ func (d *Detector) presolve(w *aheadWorker, p *presolve) {
 	copy(p.cond.Demand, p.base)
 	var modelLeak []float64
 	if d.leaky {
-		exp, err := w.solver.SolveInto(&p.cond, w.exp, w.exp)
+		exp, err := chainSolve(w.solver, &p.cond, &w.exp)
 		if err != nil {
-			w.exp = nil
 			return
 		}
-		w.exp = exp
 		p.exp = exp.CopyInto(p.exp)
 		modelLeak = p.exp.Leak
 	}
@@ -183,12 +180,10 @@ func (d *Detector) presolve(w *aheadWorker, p *presolve) {
 		}
 	}
 	d.matchDemand(p.cond.Demand, p.base, p.mult)
-	mat, err := w.solver.SolveInto(&p.cond, w.mat, w.mat)
+	mat, err := chainSolve(w.solver, &p.cond, &w.mat)
 	if err != nil {
-		w.mat = nil
 		return
 	}
-	w.mat = mat
 	p.mat = mat.CopyInto(p.mat)
 	p.ok = true
 }
@@ -219,16 +214,7 @@ func (p *presolve) meterValue(si int) (float64, bool) {
 // and link statuses, bit for bit (NaN, "as in the network", equal to
 // NaN).
 func sameBounds(a, b *hydraulic.Conditions) bool {
-	return sameBits(a.FixedHead, b.FixedHead) && len(a.Status) == len(b.Status) && equalStatus(a, b)
-}
-
-func equalStatus(a, b *hydraulic.Conditions) bool {
-	for i := range a.Status {
-		if a.Status[i] != b.Status[i] {
-			return false
-		}
-	}
-	return true
+	return sameBits(a.FixedHead, b.FixedHead) && slices.Equal(a.Status, b.Status)
 }
 
 func sameBits(a, b []float64) bool {

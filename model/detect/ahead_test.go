@@ -66,8 +66,8 @@ func TestAheadDecidesAsStepAlone(t *testing.T) {
 					step(snaps[k-2])
 				}
 			}
-			for _, s := range ahead.Pending() {
-				step(s)
+			for ahead.Len() > 0 {
+				step(ahead.Oldest())
 			}
 			if len(want) == 0 {
 				t.Fatal("no finding to compare")

@@ -32,12 +32,7 @@ func TestBridgeResponse(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	ev := evidence{zone: 0, scale: 1}
-	for _, si := range d.zones[0].evidence {
-		ev.sensors = append(ev.sensors, si)
-		ev.w = append(ev.w, 1)
-	}
-	ev.dr = make([]float64, len(ev.sensors))
+	ev := loggerEvidence(d)
 	sg, err := d.signatures(ev)
 	if err != nil {
 		t.Fatal(err)

@@ -51,13 +51,19 @@ func gridEvidence(t *testing.T) (*Detector, evidence) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	return d, loggerEvidence(d)
+}
+
+// loggerEvidence is the evidence of every logger of d's first zone at
+// base demand (scale 1), unit weights, no residual and no balance term.
+func loggerEvidence(d *Detector) evidence {
 	ev := evidence{zone: 0, scale: 1}
 	for _, si := range d.zones[0].evidence {
 		ev.sensors = append(ev.sensors, si)
 		ev.w = append(ev.w, 1)
 	}
 	ev.dr = make([]float64, len(ev.sensors))
-	return d, ev
+	return ev
 }
 
 var sigJunctions = []string{"J-43", "J-05", "J-11", "J-55", "J-30"}
