@@ -9,8 +9,6 @@ import (
 	"sort"
 	"time"
 
-	"gonum.org/v1/gonum/stat/distuv"
-
 	"plumbline/model/demand"
 	"plumbline/model/finding"
 	"plumbline/model/hydraulic"
@@ -766,21 +764,14 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 		}
 		zs.Rebase = false
 		if len(zs.Nights) >= d.cfg.LearnNights {
-			med, sd := nightBaseline(zs.Nights)
-			// σ of a new night's mean imbalance: the scatter of past quiet
-			// nights widened for a prediction from n of them, s·√(1+1/n)
-			// (the prediction interval of a normal sample, e.g. Hahn &
-			// Meeker 1991), at least 0.05 L/s or 1% of the night flow
+			// The night against its prediction from past quiet nights
+			// (predictNight), σ at least 0.05 L/s or 1% of the night flow
 			// (common practice for meter resolution, not from a source).
-			// With a week or two of nights the scatter itself is uncertain:
-			// widen it by the Student t quantile over the normal one at
-			// 97.5% (Student 1908), 1.25 for 7 nights, 1.05 for 28.
-			n := float64(len(zs.Nights))
-			tq := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: n - 1}.Quantile(0.975) / 1.959964
-			sigma := math.Max(sd*math.Sqrt(1+1/n)*tq, math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
-			z := (adj - med) / sigma
+			p := predictNight(zs.Nights)
+			sigma := math.Max(p.sigma, math.Max(0.05, 0.01*math.Abs(zs.NightMin)))
+			z := (adj - p.mean) / sigma
 			d.tracef("%s zone %s night: imbalance %+.2f L/s, normal %+.2f ± %.2f (%d nights), z %+.2f, CUSUM %.2f of %.2f",
-				zs.NightStart.UTC().Format(time.RFC3339), d.zones[zi].z.ID, adj, med, sigma, len(zs.Nights), z, zs.Night.S, zs.Night.H)
+				zs.NightStart.UTC().Format(time.RFC3339), d.zones[zi].z.ID, adj, p.mean, sigma, len(zs.Nights), z, zs.Night.S, zs.Night.H)
 			if zs.Repair.Update(zs.NightStart, -z) {
 				d.repaired(zi, zs.Repair.Shift()*sigma, t)
 				zs.Repair.Reset()
@@ -788,7 +779,7 @@ func (d *Detector) closeNights(t time.Time) []NightFlow {
 			alarm := zs.Night.Update(zs.NightStart, z)
 			if alarm {
 				size := zs.Night.Shift() * sigma
-				d.zoneHypothesis(zi, zs.Night.Onset, t, size, fmt.Sprintf("night imbalance %+.2f L/s above the median of the last %d nights (%.1fσ)", size, len(zs.Nights), size/sigma))
+				d.zoneHypothesis(zi, zs.Night.Onset, t, size, fmt.Sprintf("night imbalance %+.2f L/s above the mean of the last %d quiet nights (%.1fσ)", size, len(zs.Nights), size/sigma))
 			}
 			if zs.Night.S < zs.Night.H/2 {
 				zs.Nights = appendCapped(zs.Nights, adj, 28)
