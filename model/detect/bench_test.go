@@ -219,8 +219,9 @@ func BenchmarkLocalise100k(b *testing.B) {
 		}
 	}
 	// The costliest case: every kind in the running. A blockage must move
-	// some logger by more than its accuracy; the far 5 L/s leak moves none
-	// by 0.02 bar, so the loggers' accuracy is set below the evidence.
+	// the loggers by more than their accuracy; the far 5 L/s leak moves
+	// them much less than 0.02 bar, so the loggers' accuracy is set below
+	// the evidence.
 	for i := range d.sens {
 		d.sens[i].accuracy = 1e-4
 	}

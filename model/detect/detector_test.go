@@ -483,3 +483,29 @@ func TestGrowingLeakIsOneFinding(t *testing.T) {
 		t.Errorf("size %.2f L/s did not grow from %.2f", final.SizeLPS, leaks[0].SizeLPS)
 	}
 }
+
+// A change picture shared by loggers counts by its root-sum-square over
+// their accuracy, less the noise of the mean changes (worked by hand):
+// two loggers at 0.75 of their accuracy together are sqrt(2)·0.75 = 1.06
+// of it, one alone 0.75; a picture no bigger than the noise is nothing.
+func TestLargestChangeCountsSharedPictures(t *testing.T) {
+	d := &Detector{sens: []sensorInfo{{accuracy: 0.2}, {accuracy: 0.2}, {accuracy: 0.2}}}
+	ev := evidence{sensors: []int{0, 1, 2}, w: []float64{1e6, 1e6, 1e6}}
+	for _, c := range []struct {
+		name string
+		dr   []float64
+		w    float64
+		want bool
+	}{
+		{"one logger beyond its accuracy", []float64{-0.21, 0, 0}, 1e6, true},
+		{"one logger within it", []float64{-0.15, 0, 0}, 1e6, false},
+		{"two loggers within it, together beyond", []float64{-0.15, -0.15, 0}, 1e6, true},
+		{"three loggers at their noise", []float64{0.1, -0.1, 0.1}, 1 / (0.1 * 0.1), false},
+	} {
+		ev.dr = c.dr
+		ev.w = []float64{c.w, c.w, c.w}
+		if got := d.largestChange(ev); got != c.want {
+			t.Errorf("%s: %v, want %v", c.name, got, c.want)
+		}
+	}
+}

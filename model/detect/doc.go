@@ -49,7 +49,8 @@
 // an inflow meter reading high. The linear signatures rank all candidates;
 // the best few are re-scored with full non-linear solves (and a blockage's
 // open fraction fitted). An explanation must also matter in practice: a
-// blockage must move some logger by more than its accuracy, a leak must
+// blockage must move the loggers, taken together, by more than their
+// accuracy (the root-sum-square of the changes over it), a leak must
 // show in the balance, a sensor fault must exceed the sensor's accuracy.
 // A zone flow meter error is weighed in both paths: its residual picture
 // is the inflow-matched model spreading water that is not there (or

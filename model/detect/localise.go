@@ -926,7 +926,7 @@ type hypotheses struct {
 // residual alarm: the linear fits at every link and junction of the zone
 // (adjoint signatures), then the non-linear re-scoring of each shortlist.
 // Each explanation must matter in practice as well as fit: a blockage
-// must move some logger by more than that logger's accuracy, and a leak
+// must move the loggers by more than their accuracy (largestChange), and a leak
 // must show in the zone balance (the primary leak evidence), at least
 // two of its σ above normal; a kind that cannot pass is not re-scored.
 func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
@@ -947,7 +947,7 @@ func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
 			hy.bestBlockage = hy.blocks[0].sse
 		}
 	}
-	if z := ev.dI * math.Sqrt(ev.wI); ev.wI > 0 && z > 2 {
+	if z := balanceZ(ev); z > 2 {
 		lq := -1.0
 		if z > 3 {
 			lq = ev.dI // the balance moved clearly: it measures the leak
@@ -1076,6 +1076,14 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	}
 }
 
+// balanceZ is the zone imbalance change of the evidence in its σ.
+func balanceZ(ev evidence) float64 {
+	if ev.wI <= 0 {
+		return 0
+	}
+	return ev.dI * math.Sqrt(ev.wI)
+}
+
 // changePoint returns the hour at which the series in r most likely
 // stepped, in the direction dir (±1): the τ in [lo, end] that maximises
 // S_τ²/n_τ with S_τ the sum of the values since τ (the likelihood-ratio
@@ -1130,15 +1138,26 @@ func (d *Detector) sameEvent(f finding.Finding) (int, bool) {
 	return 0, false
 }
 
-// largestChange reports whether some logger of the evidence moved by more
-// than its own stated accuracy.
+// largestChange reports whether the loggers of the evidence moved, taken
+// together, by more than their stated accuracy: the root-sum-square of
+// each logger's change over its accuracy, less what the noise of the mean
+// change adds (1/w per logger), exceeds one. A logger's accuracy bounds
+// the slow drift a residual change may be; drifts of independent loggers
+// projected onto the direction of a change picture have that same size,
+// so a picture that several loggers share is a physical change sooner
+// than one logger alone. For one logger it is the test that its change
+// exceeds its accuracy.
 func (d *Detector) largestChange(ev evidence) bool {
+	sum := 0.0
 	for k, si := range ev.sensors {
-		if math.Abs(ev.dr[k]) > d.sens[si].accuracy {
-			return true
+		a := d.sens[si].accuracy
+		noise := 0.0
+		if ev.w[k] > 0 {
+			noise = 1 / ev.w[k]
 		}
+		sum += (ev.dr[k]*ev.dr[k] - noise) / (a * a)
 	}
-	return false
+	return sum > 1
 }
 
 // refineOnset moves a zone change's onset to the hour that best fits a
