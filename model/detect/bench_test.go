@@ -168,12 +168,12 @@ func BenchmarkStep5k(b *testing.B) {
 // (Detector.physicalHypotheses, as residualHypothesis calls it): the same
 // signatures, the linear leak and blockage fits, then the non-linear
 // re-scoring of both shortlists, each blockage's open fraction fitted
-// (five sampling solves and one check per candidate) and, the balance
-// having moved clearly, each leak at the balance's size (one solve).
+// (five sampling solves and one check per candidate) and each leak's size
+// fitted to the pressures and the balance together (two sampling solves
+// per candidate, two shared, one check), the balance having moved clearly.
 //
 // path=residual-fitted is the same with the balance barely moved (2.5 of
-// its σ): each shortlisted leak's size is fitted too (two sampling solves
-// per candidate, two shared, one check).
+// its σ), so that the pressures alone set the leaks' sizes.
 func BenchmarkLocalise100k(b *testing.B) {
 	raw, err := netgen.Town(netgen.Options{Junctions: 100_000, Zones: 1, Seed: 1})
 	if err != nil {

@@ -948,12 +948,15 @@ func (d *Detector) physicalHypotheses(ev evidence) hypotheses {
 		}
 	}
 	if z := balanceZ(ev); z > 2 {
-		lq := -1.0
-		if z > 3 {
-			lq = ev.dI // the balance moved clearly: it measures the leak
-		}
+		// The leak's size is fitted to the pressures and the balance
+		// together, each by its weight: where the balance is precise (a
+		// small zone) it sets the size; where the zone's whole demand
+		// swings from day to day by more than a leak (a large one), the
+		// balance's rise holds that swing too, which the inflow-matched
+		// model spreads over the zone as it really is, and only the
+		// pressures tell the leak's share.
 		short, _ := rank(d.leakFits(ev.zone, ev, sg, -1), shortlist)
-		hy.leaks, hy.leakScores = rank(d.refineLeaks(ev, sg, short, lq), d.cfg.Candidates)
+		hy.leaks, hy.leakScores = rank(d.refineLeaks(ev, sg, short, -1), d.cfg.Candidates)
 		if len(hy.leaks) > 0 && hy.leaks[0].size > 0 {
 			hy.bestLeak = hy.leaks[0].sse
 		}
@@ -1054,14 +1057,17 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		return true
 	default:
 		l := lTop[0]
-		size := l.size
-		if ev.dI > 0 {
-			size = ev.dI // the balance measures a leak better than the pressures do
-		}
+		size := l.size // fitted to the pressures and the balance together
 		if hy.sg != nil {
+			// Whether two leaks share the water, or an open one has grown,
+			// is weighed on all the water the balance says is gone.
+			total := size
+			if ev.dI > 0 {
+				total = ev.dI
+			}
 			why := fmt.Sprintf("zone imbalance %+.2f L/s", ev.dI)
-			fits := d.leakFits(zi, ev, hy.sg, size)
-			if d.grownLeak(zi, fits, size, now, why) || d.raisePair(zi, ev, hy.sg, fits, size, l.sse, onset, now, why) {
+			fits := d.leakFits(zi, ev, hy.sg, total)
+			if d.grownLeak(zi, fits, total, now, why) || d.raisePair(zi, ev, hy.sg, fits, total, l.sse, onset, now, why) {
 				return true
 			}
 		}
