@@ -179,6 +179,14 @@ type zoneState struct {
 	// Storm counts the consecutive steps in which most of the zone's
 	// loggers read out of range together (pressureLoss); StormAt is when
 	// the last such event was raised.
+	// MeterErr is the error (L/s, reading minus truth) of the zone's flow
+	// metering that a meter-fault finding fitted, while its meters are
+	// out of the balance; OutSum and OutN add up the imbalance the left
+	// out meters would show against the zone's normal meanwhile, so that
+	// they come back only once their error is gone (meterBack).
+	MeterErr   float64
+	OutSum     float64
+	OutN       int
 	Storm      int
 	StormAt    time.Time
 	StormStart time.Time
@@ -591,6 +599,7 @@ func (d *Detector) step(snap telemetry.Snapshot, pre *presolve) (*StepResult, er
 			d.st.MeanMult[zi] += (mult[zi] - d.st.MeanMult[zi]) / float64(min(d.st.Steps+1, 2016))
 		} else {
 			zb.InflowLPS, zb.Imbalance = math.NaN(), math.NaN()
+			d.watchMeters(zi, t, snap, zb.ExpectedLPS)
 		}
 		zb.Multiplier = mult[zi]
 		zs := &d.st.Zones[zi]
@@ -661,6 +670,64 @@ func (d *Detector) zoneInflow(zi int, value func(si int) (float64, bool)) (float
 		}
 	}
 	return q, true
+}
+
+// watchMeters follows, while a meter-fault finding keeps zone zi's flow
+// meters out of the balance, the imbalance they would show against the
+// zone's normal for the hour (their usable readings, as they come).
+func (d *Detector) watchMeters(zi int, t time.Time, snap telemetry.Snapshot, expected float64) {
+	zs := &d.st.Zones[zi]
+	if zs.MeterErr == 0 {
+		return
+	}
+	raw, ok := d.zoneInflow(zi, func(si int) (float64, bool) {
+		a := snap.Values[si]
+		return a.Value, usable(a)
+	})
+	if ok {
+		zs.OutSum += raw - expected - zs.Base.Mean[d.localHour(zi, t)]
+		zs.OutN++
+	}
+}
+
+// meterBack reports whether flow meter si may return to the balance after
+// its day of plausible readings: not while a zone it balances shows, by
+// the meters left out, more than half the error its meter-fault finding
+// fitted, on the same side. Ingest cannot see a meter's offset; the
+// balance can. A zone whose meters come back (or were never judged)
+// forgets the error, and each judgement starts a new day of evidence.
+func (d *Detector) meterBack(si int) bool {
+	back := true
+	for zi := range d.zones {
+		zs := &d.st.Zones[zi]
+		if zs.MeterErr == 0 || !d.zoneMeter(zi, si) {
+			continue
+		}
+		if zs.OutN > 0 {
+			if m := zs.OutSum / float64(zs.OutN); m*zs.MeterErr > 0 && math.Abs(m) > math.Abs(zs.MeterErr)/2 {
+				back = false
+			}
+		}
+		zs.OutSum, zs.OutN = 0, 0
+	}
+	if back {
+		for zi := range d.zones {
+			if d.zoneMeter(zi, si) {
+				d.st.Zones[zi].MeterErr = 0
+			}
+		}
+	}
+	return back
+}
+
+// zoneMeter reports whether sensor si is one of zone zi's boundary meters.
+func (d *Detector) zoneMeter(zi, si int) bool {
+	for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
+		if m.sensor == si {
+			return true
+		}
+	}
+	return false
 }
 
 // meterValue is a flow meter's value for the balance: this step's, or,
@@ -972,6 +1039,9 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 					ss.Quiet++
 				} else {
 					ss.Quiet = 0
+				}
+				if ss.Quiet >= day && !d.meterBack(si) {
+					ss.Quiet = 0 // the error a meter-fault finding saw is still there
 				}
 				if ss.Quiet >= day {
 					ss.Excluded, ss.Quiet, ss.BadSteps, ss.Spikes, ss.Unchanged = false, 0, 0, nil, 0

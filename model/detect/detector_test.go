@@ -362,7 +362,7 @@ func TestZoneWidePressureLossIsASupplyBlockage(t *testing.T) {
 func TestInletMeterUnderReadingIsASensorFault(t *testing.T) {
 	net := gridTown()
 	start := t0.Add(9*24*time.Hour + 3*time.Hour)
-	snaps := simulate(t, net, 12, 6, []sim.Event{{Kind: finding.SensorFault, At: "F-in", Start: start, Mode: "offset", Amount: -2}})
+	snaps := simulate(t, net, 14, 6, []sim.Event{{Kind: finding.SensorFault, At: "F-in", Start: start, Mode: "offset", Amount: -2}})
 	d, err := New(gridConfig(net))
 	if err != nil {
 		t.Fatal(err)
@@ -381,6 +381,34 @@ func TestInletMeterUnderReadingIsASensorFault(t *testing.T) {
 	}
 	if !meter {
 		t.Error("no sensor fault names F-in")
+	}
+	// Its readings look plausible to ingest, but the balance the left-out
+	// meter would give still carries the offset: it stays out, and the
+	// same offset is not found again.
+	if len(fs) != 1 {
+		t.Errorf("%d findings for one meter offset, want 1", len(fs))
+	}
+	if si := d.bySensor["F-in"]; !d.st.Sensors[si].Excluded {
+		t.Error("F-in let back into the balance with its offset still in it")
+	}
+}
+
+// The same meter mended a day after its offset began comes back into the
+// balance after a day of readings that agree with the zone's normal.
+func TestMendedMeterComesBack(t *testing.T) {
+	net := gridTown()
+	start := t0.Add(9*24*time.Hour + 3*time.Hour)
+	snaps := simulate(t, net, 13, 6, []sim.Event{{Kind: finding.SensorFault, At: "F-in", Start: start, End: start.Add(30 * time.Hour), Mode: "offset", Amount: -2}})
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fs := detectAll(t, d, snaps)
+	if len(fs) == 0 || fs[0].Kind != finding.SensorFault {
+		t.Fatalf("findings %v, want the meter fault first", fs)
+	}
+	if si := d.bySensor["F-in"]; d.st.Sensors[si].Excluded {
+		t.Error("F-in still out of the balance two days after it was mended")
 	}
 }
 

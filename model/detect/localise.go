@@ -680,7 +680,7 @@ func (d *Detector) zoneHypothesis(zi int, onset, now time.Time, size float64, wh
 	// leak (by more than the 2 units of SSE one parameter may buy, Akaike
 	// 1974) before the finding blames the instrument.
 	if len(top) > 0 && meterSSE+2 < top[0].sse && len(d.zones[zi].inlets)+len(d.zones[zi].outlets) > 0 {
-		d.meterFault(zi, ev, onset, now, why+", but pressures did not fall as a leak of that size would")
+		d.meterFault(zi, ev, size, onset, now, why+", but pressures did not fall as a leak of that size would")
 		return true
 	}
 	single := math.Inf(1)
@@ -865,8 +865,11 @@ func (d *Detector) leakCandidates(ev evidence, sg *signatures, q float64) []find
 // residual picture is that of the inflow-matched model spreading water
 // that is not there (a meter over-reading: loggers read above the model)
 // or missing water that is (under-reading: below it). The meters are left
-// out of the balance until they read plausibly again.
-func (d *Detector) meterFault(zi int, ev evidence, onset, now time.Time, why string) {
+// out of the balance until they read plausibly again and the error delta
+// (L/s, reading minus truth) the finding fitted is gone (meterBack).
+func (d *Detector) meterFault(zi int, ev evidence, delta float64, onset, now time.Time, why string) {
+	zs := &d.st.Zones[zi]
+	zs.MeterErr, zs.OutSum, zs.OutN = delta, 0, 0
 	f := finding.Finding{Kind: finding.SensorFault, Zone: d.zones[zi].z.ID, Onset: onset, Raised: now, Candidates: []finding.Candidate{}}
 	for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
 		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.sens[m.sensor].s.ID, Score: 1})
@@ -1017,7 +1020,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 		if hy.meterSize < 0 {
 			side = "under"
 		}
-		d.meterFault(zi, ev, onset, now, fmt.Sprintf("pressures moved together since %s in the pattern of the zone's flow metering %s-reading by about %.2f L/s (zone imbalance %+.2f L/s)",
+		d.meterFault(zi, ev, hy.meterSize, onset, now, fmt.Sprintf("pressures moved together since %s in the pattern of the zone's flow metering %s-reading by about %.2f L/s (zone imbalance %+.2f L/s)",
 			onset.UTC().Format("2006-01-02 15:04"), side, math.Abs(hy.meterSize), ev.dI))
 		return true
 	case faultSSE <= bestB && faultSSE <= bestL && math.Abs(ev.dr[me]) < d.sens[si].accuracy:
