@@ -62,7 +62,9 @@
 //
 // Sensor faults are also raised directly from ingest's quality flags
 // (stuck, spikes, out of range), and faulty sensors are left out of the
-// evidence until they read normally again. When most of a zone's loggers
+// evidence until they read normally again; zone flow meters blamed by a
+// meter-fault finding only once the balance they would give agrees with
+// the zone's normal again. When most of a zone's loggers
 // read out of range together, that is not a fault of each: the zone lost
 // pressure, and one finding says so (a blockage on its supply, or a burst
 // when the balance shows the water going).
