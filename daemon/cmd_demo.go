@@ -60,6 +60,8 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) error
 			return err
 		}
 		dir = d
+	} else if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("--data-dir %s: %w", dir, err)
 	}
 	cfg, net, err := demoConfig(dir)
 	if err != nil {

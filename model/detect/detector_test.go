@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"strings"
 	"testing"
 	"time"
 
@@ -535,5 +536,38 @@ func TestLargestChangeCountsSharedPictures(t *testing.T) {
 		if got := d.largestChange(ev); got != c.want {
 			t.Errorf("%s: %v, want %v", c.name, got, c.want)
 		}
+	}
+}
+
+// A blockage seen again with the next pipe along the main ranked first is
+// the same event; one three pipes away on another street is not (worked
+// by hand on the grid town: P-J-00-e and P-J-01-e share J-01).
+func TestSameBlockageAlongAMain(t *testing.T) {
+	net := gridTown()
+	d, err := New(gridConfig(net))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cand := func(ids ...string) []finding.Candidate {
+		var cs []finding.Candidate
+		for _, id := range ids {
+			cs = append(cs, finding.Candidate{ID: id, Score: 1})
+		}
+		return cs
+	}
+	d.raise(finding.Finding{Kind: finding.Blockage, Zone: "grid", Candidates: cand("P-J-00-e")})
+	if _, ok := d.sameEvent(finding.Finding{Kind: finding.Blockage, Zone: "grid", Candidates: cand("P-J-01-e", "P-J-11-e")}); !ok {
+		t.Error("the next pipe along the main taken for a new blockage")
+	}
+	if _, ok := d.sameEvent(finding.Finding{Kind: finding.Blockage, Zone: "grid", Candidates: cand("P-J-44-e", "P-J-45-s")}); ok {
+		t.Error("a pipe on another street taken for the same blockage")
+	}
+	// Seen again, the finding keeps the candidates it was located by and
+	// notes the later look; no second finding.
+	leak := 0.0
+	d.takeIn(0, evidence{}, t0, false, finding.Finding{Kind: finding.Blockage, Zone: "grid", Raised: t0, Candidates: cand("P-J-01-e")}, &leak)
+	fs := d.Findings()
+	if len(fs) != 1 || fs[0].Candidates[0].ID != "P-J-00-e" || !strings.Contains(fs[0].Evidence, "seen again") {
+		t.Errorf("after the second look: %+v", fs)
 	}
 }

@@ -593,6 +593,9 @@ func (d *Detector) acceptAll(zi int, ev evidence, leak float64, now time.Time, w
 	d.settle(zi, leak, now)
 }
 
+// seenAgain starts the note an updated finding carries of its latest look.
+const seenAgain = "; seen again "
+
 // takeIn raises f or, when it is a change an open finding already
 // reports, updates that one (and then it moves no baseline: *leak = 0).
 func (d *Detector) takeIn(zi int, ev evidence, now time.Time, watch bool, f finding.Finding, leak *float64) {
@@ -600,9 +603,17 @@ func (d *Detector) takeIn(zi int, ev evidence, now time.Time, watch bool, f find
 		old := &d.st.Findings[i]
 		// The change is the one an open finding already reports (a
 		// blockage's effect grows and shrinks with the day's flows): the
-		// finding is updated, not raised again.
-		old.Candidates, old.Evidence = f.Candidates, f.Evidence+" (update)"
-		old.OpenFrac = f.OpenFrac
+		// finding is updated, not raised again. Its candidates stay those
+		// it was located by (a day of evidence); a later look, from hours
+		// of the change's swing, is noted beside them.
+		if k := strings.Index(old.Evidence, seenAgain); k >= 0 {
+			old.Evidence = old.Evidence[:k]
+		}
+		best := ""
+		if len(f.Candidates) > 0 {
+			best = ", best " + f.Candidates[0].ID
+		}
+		old.Evidence += fmt.Sprintf("%s%s%s", seenAgain, f.Raised.UTC().Format("2006-01-02 15:04"), best)
 		d.updated = append(d.updated, *old)
 		*leak = 0
 		return
@@ -1118,28 +1129,32 @@ func changePoint(r *ring, lo time.Time, dir float64, fallback time.Time) time.Ti
 	return at
 }
 
-// sameEvent finds an open blockage of the same zone whose best
-// candidates (three) overlap f's: the same constriction seen again.
+// sameEvent finds an open blockage of the same zone whose candidates
+// overlap f's or touch them (share a node): the same constriction seen
+// again. Pipes in series along one main leave nearly the same picture,
+// so a later look may rank another pipe along it first.
 // Leaks are matched by grownLeak instead.
 func (d *Detector) sameEvent(f finding.Finding) (int, bool) {
 	if f.Kind != finding.Blockage {
 		return 0, false
 	}
-	top := func(cs []finding.Candidate) map[string]bool {
-		m := map[string]bool{}
-		for i := 0; i < len(cs) && i < 3; i++ {
-			m[cs[i].ID] = true
+	ends := func(cs []finding.Candidate) map[int]bool {
+		m := map[int]bool{}
+		for _, c := range cs {
+			if l, ok := d.net.LinkIndex(c.ID); ok {
+				m[d.net.Links[l].From], m[d.net.Links[l].To] = true, true
+			}
 		}
 		return m
 	}
-	mine := top(f.Candidates)
+	mine := ends(f.Candidates)
 	for i := len(d.st.Findings) - 1; i >= 0; i-- {
 		g := d.st.Findings[i]
 		if g.Kind != f.Kind || g.Zone != f.Zone || (i < len(d.st.Resolved) && d.st.Resolved[i]) {
 			continue
 		}
-		for id := range top(g.Candidates) {
-			if mine[id] {
+		for n := range ends(g.Candidates) {
+			if mine[n] {
 				return i, true
 			}
 		}
