@@ -114,8 +114,15 @@ func (b *Baseline) Shift(d float64) {
 // nightBaseline returns the mean and standard deviation of past nights
 // after one pass that sets aside outliers: one odd night (a fire hydrant
 // used, a meter glitch) must not widen the band for a month. A night is
-// an outlier when it lies outside the prediction interval of the others
-// at a family-wise 1% (outliers).
+// set aside when it lies outside the prediction interval of the others:
+// its deviation from their mean over s·√(1+1/m) (s and m the others'
+// scatter and number) is Student-t distributed on m−1 degrees of freedom
+// (the externally studentised residual, e.g. Cook & Weisberg 1982, from
+// memory), and the cut is the two-sided quantile at 1%/n (Bonferroni), so
+// that a sample without outliers loses a night one time in a hundred. A
+// cut at 3.5 median absolute deviations, used before, trimmed every
+// seventh normal sample of eight and left the night interval covering 91%
+// where 95% was designed (by simulation).
 func nightBaseline(xs []float64) (mean, sd float64) {
 	n := len(xs)
 	var sum, sq float64
@@ -123,16 +130,17 @@ func nightBaseline(xs []float64) (mean, sd float64) {
 		sum += x
 		sq += x * x
 	}
-	out := outliers(n, func(i int) (float64, float64, float64) {
-		// The others' mean and variance from the sums, leaving x_i out.
+	keep := xs
+	if n >= 4 { // fewer nights: none set aside
 		m := float64(n - 1)
-		mi := (sum - xs[i]) / m
-		vi := (sq - xs[i]*xs[i] - m*mi*mi) / (m - 1)
-		return xs[i] - mi, math.Sqrt(math.Max(vi, 0) * (1 + 1/m)), m - 1
-	})
-	var keep []float64
-	for i, x := range xs {
-		if !out[i] {
+		q := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: m - 1}.Quantile(1 - 0.005/float64(n))
+		keep = nil
+		for _, x := range xs {
+			mi := (sum - x) / m
+			si := math.Sqrt(math.Max((sq-x*x-m*mi*mi)/(m-1), 0) * (1 + 1/m))
+			if si > 0 && math.Abs(x-mi) > q*si {
+				continue
+			}
 			keep = append(keep, x)
 		}
 	}
@@ -166,30 +174,4 @@ func predictNight(nights []float64) nightPrediction {
 		p.sigma = sd * math.Sqrt(1+1/n) * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: n - 1}.Quantile(0.975) / 1.959964
 	}
 	return p
-}
-
-// outliers marks the points of a sample of n that fail a leave-one-out
-// test: loo(i) is point i's deviation from what the other n−1 predict,
-// the σ of that prediction and its degrees of freedom; the deviation over
-// σ is then Student-t distributed (the externally studentised residual,
-// e.g. Cook & Weisberg 1982, from memory), and a point is set aside when
-// it exceeds the two-sided quantile at 1%/n (Bonferroni): in a sample
-// without outliers, one in a hundred loses a point. A cut at a multiple
-// of the median absolute deviation, tried first, trims every seventh
-// normal sample of eight and left the night interval covering 91% where
-// 95% was designed (by simulation).
-func outliers(n int, loo func(i int) (dev, sigma, df float64)) []bool {
-	out := make([]bool, n)
-	if n < 4 {
-		return out
-	}
-	for i := range out {
-		dev, sigma, df := loo(i)
-		if df < 2 || !(sigma > 0) {
-			continue
-		}
-		q := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: df}.Quantile(1 - 0.005/float64(n))
-		out[i] = math.Abs(dev) > q*sigma
-	}
-	return out
 }

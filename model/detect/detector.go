@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"time"
 
@@ -85,6 +86,7 @@ type zoneInfo struct {
 	z          Zone
 	inlets     []meter
 	outlets    []meter
+	boundary   []meter // inlets then outlets
 	junctions  []int
 	evidence   []int   // sensor indices of the zone's pressure/head sensors
 	nightSteps int     // steps in one night window
@@ -176,17 +178,17 @@ type zoneState struct {
 	LeakQuiet    time.Time
 	ResidQuiet   time.Time
 	NightLearned int
-	// Storm counts the consecutive steps in which most of the zone's
-	// loggers read out of range together (pressureLoss); StormAt is when
-	// the last such event was raised.
 	// MeterErr is the error (L/s, reading minus truth) of the zone's flow
 	// metering that a meter-fault finding fitted, while its meters are
 	// out of the balance; OutSum and OutN add up the imbalance the left
 	// out meters would show against the zone's normal meanwhile, so that
 	// they come back only once their error is gone (meterBack).
-	MeterErr   float64
-	OutSum     float64
-	OutN       int
+	MeterErr float64
+	OutSum   float64
+	OutN     int
+	// Storm counts the consecutive steps in which most of the zone's
+	// loggers read out of range together (pressureLoss); StormAt is when
+	// the last such event was raised.
 	Storm      int
 	StormAt    time.Time
 	StormStart time.Time
@@ -360,6 +362,7 @@ func New(cfg Config) (*Detector, error) {
 		for _, id := range z.Outlets {
 			d.zones[zi].outlets = append(d.zones[zi].outlets, d.meterFor(zi, d.bySensor[id], true))
 		}
+		d.zones[zi].boundary = append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...)
 	}
 	for si := range d.sens {
 		if d.sens[si].evidence && d.sens[si].zone >= 0 {
@@ -694,40 +697,28 @@ func (d *Detector) watchMeters(zi int, t time.Time, snap telemetry.Snapshot, exp
 // its day of plausible readings: not while a zone it balances shows, by
 // the meters left out, more than half the error its meter-fault finding
 // fitted, on the same side. Ingest cannot see a meter's offset; the
-// balance can. A zone whose meters come back (or were never judged)
-// forgets the error, and each judgement starts a new day of evidence.
+// balance can. Each judgement starts a new day of evidence; when the
+// meter comes back, its zones forget the error.
 func (d *Detector) meterBack(si int) bool {
+	var judged []*zoneState
 	back := true
 	for zi := range d.zones {
 		zs := &d.st.Zones[zi]
-		if zs.MeterErr == 0 || !d.zoneMeter(zi, si) {
+		if zs.MeterErr == 0 || !slices.ContainsFunc(d.zones[zi].boundary, func(m meter) bool { return m.sensor == si }) {
 			continue
 		}
-		if zs.OutN > 0 {
-			if m := zs.OutSum / float64(zs.OutN); m*zs.MeterErr > 0 && math.Abs(m) > math.Abs(zs.MeterErr)/2 {
-				back = false
-			}
+		if m := zs.OutSum / float64(max(zs.OutN, 1)); m*zs.MeterErr > 0 && math.Abs(m) > math.Abs(zs.MeterErr)/2 {
+			back = false
 		}
 		zs.OutSum, zs.OutN = 0, 0
+		judged = append(judged, zs)
 	}
 	if back {
-		for zi := range d.zones {
-			if d.zoneMeter(zi, si) {
-				d.st.Zones[zi].MeterErr = 0
-			}
+		for _, zs := range judged {
+			zs.MeterErr = 0
 		}
 	}
 	return back
-}
-
-// zoneMeter reports whether sensor si is one of zone zi's boundary meters.
-func (d *Detector) zoneMeter(zi, si int) bool {
-	for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
-		if m.sensor == si {
-			return true
-		}
-	}
-	return false
 }
 
 // meterValue is a flow meter's value for the balance: this step's, or,

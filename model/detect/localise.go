@@ -613,7 +613,7 @@ func (d *Detector) takeIn(zi int, ev evidence, now time.Time, watch bool, f find
 		if len(f.Candidates) > 0 {
 			best = ", best " + f.Candidates[0].ID
 		}
-		old.Evidence += fmt.Sprintf("%s%s%s", seenAgain, f.Raised.UTC().Format("2006-01-02 15:04"), best)
+		old.Evidence += seenAgain + f.Raised.UTC().Format("2006-01-02 15:04") + best
 		d.updated = append(d.updated, *old)
 		*leak = 0
 		return
@@ -882,7 +882,7 @@ func (d *Detector) meterFault(zi int, ev evidence, delta float64, onset, now tim
 	zs := &d.st.Zones[zi]
 	zs.MeterErr, zs.OutSum, zs.OutN = delta, 0, 0
 	f := finding.Finding{Kind: finding.SensorFault, Zone: d.zones[zi].z.ID, Onset: onset, Raised: now, Candidates: []finding.Candidate{}}
-	for _, m := range append(append([]meter{}, d.zones[zi].inlets...), d.zones[zi].outlets...) {
+	for _, m := range d.zones[zi].boundary {
 		f.Candidates = append(f.Candidates, finding.Candidate{ID: d.sens[m.sensor].s.ID, Score: 1})
 		d.st.Sensors[m.sensor].Excluded = true
 	}
@@ -909,14 +909,14 @@ func (d *Detector) meterFit(ev evidence, sg *signatures) (float64, float64) {
 	}
 	delta := num / den
 	acc := math.Inf(1)
-	for _, m := range append(append([]meter{}, z.inlets...), z.outlets...) {
+	for _, m := range z.boundary {
 		acc = math.Min(acc, d.sens[m.sensor].accuracy)
 	}
 	// A meter's error shows in the balance itself, at least two of its σ,
 	// on the side the pressures say: otherwise the pressures moved for
 	// another reason (a leak mended shows as a fall of the balance with
 	// pressures rising near the leak).
-	if math.Abs(delta) <= acc || math.Abs(ev.dI)*math.Sqrt(ev.wI) <= 2 || delta*ev.dI <= 0 {
+	if math.Abs(delta) <= acc || math.Abs(balanceZ(ev)) <= 2 || delta*ev.dI <= 0 {
 		return delta, math.Inf(1)
 	}
 	sse := ev.wI * (ev.dI - delta) * (ev.dI - delta)
@@ -1020,7 +1020,7 @@ func (d *Detector) residualHypothesis(si int, onset, now time.Time) bool {
 	if d.cfg.Trace != nil {
 		d.tracef("%s residual alarm on %s (onset %s): moved %+.3f m (accuracy %.3f); sensor-fault misfit %.1f; blockage %s; leak %s; meter error %+.2f L/s misfit %.1f; balance %+.2f L/s (%.1fσ); %d loggers",
 			now.UTC().Format(time.RFC3339), d.sens[si].s.ID, onset.UTC().Format(time.RFC3339), ev.dr[me], d.sens[si].accuracy, faultSSE,
-			d.traceBest(bTop, bestB, true), d.traceBest(lTop, bestL, false), hy.meterSize, hy.meter, ev.dI, ev.dI*math.Sqrt(ev.wI), len(ev.sensors))
+			d.traceBest(bTop, bestB, true), d.traceBest(lTop, bestL, false), hy.meterSize, hy.meter, ev.dI, balanceZ(ev), len(ev.sensors))
 	}
 	switch {
 	case hy.meter+2 < math.Min(faultSSE, math.Min(bestB, bestL)):
