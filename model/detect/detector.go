@@ -1024,18 +1024,21 @@ func (d *Detector) qualityFaults(snap telemetry.Snapshot) {
 		}
 		if ss.Excluded {
 			// A flow meter or level sensor (no residual of its own) comes
-			// back after a day of readings that ingest finds plausible.
+			// back after a day of readings that ingest finds plausible,
+			// unless the balance still shows the error a meter-fault
+			// finding saw (meterBack): then a new day starts.
 			if !d.sens[si].evidence {
 				if usable(a) {
 					ss.Quiet++
 				} else {
 					ss.Quiet = 0
 				}
-				if ss.Quiet >= day && !d.meterBack(si) {
-					ss.Quiet = 0 // the error a meter-fault finding saw is still there
-				}
 				if ss.Quiet >= day {
-					ss.Excluded, ss.Quiet, ss.BadSteps, ss.Spikes, ss.Unchanged = false, 0, 0, nil, 0
+					if d.meterBack(si) {
+						ss.Excluded, ss.Quiet, ss.BadSteps, ss.Spikes, ss.Unchanged = false, 0, 0, nil, 0
+					} else {
+						ss.Quiet = 0
+					}
 				}
 			}
 			continue
